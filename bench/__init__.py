@@ -1,0 +1,1 @@
+"""Benchmarks: speed and memory targets, with baselines measured in the same run."""

@@ -1,0 +1,1 @@
+"""beltwave dashboard: reads the store and shows recommendations, model health and what-if."""
