@@ -27,7 +27,7 @@ from optimizer.properties import (
     LATENT_HEAT_FUSION_J_PER_KG,
     Composition,
     apparent_specific_heat_j_per_kg_k,
-    default_bound_water_fraction,
+    bound_water_mass_fraction,
     density_kg_per_m3,
     ice_mass_fraction,
     specific_enthalpy_j_per_kg,
@@ -279,7 +279,7 @@ def test_unfrozen_water_is_water_minus_ice_and_tends_to_bound_water():
     unfrozen = unfrozen_water_fraction(WHITE_FISH, t, WHITE_FISH_TF_C)
     ice = ice_mass_fraction(WHITE_FISH, t, WHITE_FISH_TF_C)
     np.testing.assert_allclose(unfrozen + ice, WHITE_FISH.water, rtol=1e-15)
-    assert unfrozen[0] == pytest.approx(default_bound_water_fraction(WHITE_FISH), rel=2e-4)
+    assert unfrozen[0] == pytest.approx(bound_water_mass_fraction(WHITE_FISH), rel=2e-4)
     assert unfrozen[-1] == WHITE_FISH.water
 
 

@@ -623,7 +623,8 @@ class LineModel:
         fwd = np.atleast_2d(np.asarray(zone_forward_kw, dtype=float))
         speed = np.atleast_1d(np.asarray(belt_speed_m_per_min, dtype=float))
         n = max(fwd.shape[0], speed.shape[0], *(np.size(x) for x in (
-            infeed_temp_c, belt_load_kg_per_m, air_temp_c, infeed_moisture_pct_wb, air_rh_pct) if x is not None))
+            infeed_temp_c, belt_load_kg_per_m, air_temp_c, infeed_moisture_pct_wb, air_rh_pct) if x is not None),
+                *(np.size(v) for v in (param_overrides or {}).values()))
         fwd = np.broadcast_to(fwd, (n, self.line.zone_count))
         speed = _as_column(speed, n)
         t_in = _as_column(typ.infeed_temp_c if infeed_temp_c is None else infeed_temp_c, n)
@@ -655,63 +656,118 @@ class LineModel:
                               water_in_db=water_in)
 
 
-    def series(self, *, time_s, belt_speed_m_per_min, zone_forward_kw, infeed_temp_c,
-                belt_load_kg_per_m, air_temp_c, zone_reflected_kw=None, infeed_moisture_pct_wb=None,
-                air_rh_pct=None, keep_history=False) -> Outcome:
-        """Outfeed over time from logged settings: each parcel meets the settings of its own passage.
+    def passages(self, *, time_s, belt_speed_m_per_min, zone_forward_kw, infeed_temp_c,
+                 belt_load_kg_per_m, air_temp_c, zone_reflected_kw=None, infeed_moisture_pct_wb=None,
+                 air_rh_pct=None, rows=None) -> "Passages":
+        """What each parcel leaving at each sample time met on its way (inputs of :meth:`run`).
 
         All inputs are sample records of length T (``zone_forward_kw`` and ``zone_reflected_kw``
         of shape (T, Z)); times strictly increasing [s]. Settings are held from one sample
         to the next. When measured reflected power is given it is used; otherwise the
-        reflection relation predicts it. Parcels that entered before the record starts
-        come out as NaN.
+        reflection relation predicts it. The result depends on the line's geometry and the
+        record, not on the parameters, so a fit builds it once and runs it many times.
+        ``rows`` selects the outfeed samples whose parcels are wanted (default: all).
         """
         from .transport import passage_times
 
         t = np.asarray(time_s, dtype=float)
         n = t.size
-        fwd = np.asarray(zone_forward_kw, dtype=float).reshape(n, self.line.zone_count)
-        speed = np.asarray(belt_speed_m_per_min, dtype=float)
+        fwd = np.nan_to_num(np.asarray(zone_forward_kw, dtype=float).reshape(n, self.line.zone_count), nan=0.0)
+        speed = np.nan_to_num(np.asarray(belt_speed_m_per_min, dtype=float), nan=0.0)
         load = np.asarray(belt_load_kg_per_m, dtype=float)
         zone_len = np.asarray(self.line.zone_length_m)
         if zone_reflected_kw is None:
             refl = self.reflection.fraction(load[:, None] * zone_len[None, :]) * fwd
         else:
             refl = np.nan_to_num(np.asarray(zone_reflected_kw, dtype=float).reshape(n, -1), nan=0.0)
-        net = np.nan_to_num(fwd, nan=0.0) - refl
-        pos = self.step_positions_m
-        times = passage_times(t, speed, pos, self.line.tunnel_length_m)  # (T, S+1)
+        net = fwd - refl
+        out_rows = np.arange(n) if rows is None else np.asarray(rows)
+        times = passage_times(t, speed, self.step_positions_m, self.line.tunnel_length_m, rows=out_rows)
         ok = np.isfinite(times).all(axis=1)
-        times = np.where(ok[:, None], times, t[:, None])
-        dt = np.diff(times, axis=1)
+        times = np.where(ok[:, None], times, t[out_rows][:, None])
         mid = 0.5 * (times[:, 1:] + times[:, :-1])
         idx = np.clip(np.searchsorted(t, mid, side="right") - 1, 0, n - 1)  # sample in force at mid-step
         entry = np.clip(np.searchsorted(t, times[:, 0], side="right") - 1, 0, n - 1)
+        hold = (mid - t[idx]).max(axis=1)  # longest a logged value had to stand in for the truth
         zones = self.step_zone
         zi = np.maximum(zones, 0)
-        step_net = np.where(zones[None, :] >= 0, net[idx, zi[None, :]], 0.0)
-        step_mass = np.where(zones[None, :] >= 0, load[entry][:, None] * zone_len[zi][None, :], 1.0)
         typ = self.product.typical
         rh = np.full(n, 20.0 if typ.air_rh_pct is None else typ.air_rh_pct) if air_rh_pct is None \
             else np.asarray(air_rh_pct, dtype=float)
         t_air = np.asarray(air_temp_c, dtype=float)
         moist = None if infeed_moisture_pct_wb is None else np.asarray(infeed_moisture_pct_wb, float)[entry]
-        water_in = _as_column(self.tables.infeed_water_db(moist), n)
-        traj = self.integrate(dt_s=dt, zone_net_kw=step_net, zone_mass_kg=step_mass, air_temp_c=t_air[idx],
-                              air_rh_pct=rh[idx], infeed_temp_c=np.asarray(infeed_temp_c, float)[entry],
-                              infeed_water_db=water_in, keep_history=keep_history)
-        pv = self.parameters.values
-        out = _model_outcome(self, traj, speed=speed, load=load, infeed_temp_c=np.asarray(infeed_temp_c, float),
-                             air_temp_c=t_air, residence_s=times[:, -1] - times[:, 0],
-                             forward_kw=fwd, reflected_kw=refl,
-                             electric_kw=_electric_kw(self, np.nan_to_num(fwd), t_air, pv), water_in_db=water_in)
+        return Passages(
+            dt_s=np.diff(times, axis=1),
+            zone_net_kw=np.where(zones[None, :] >= 0, net[idx, zi[None, :]], 0.0),
+            zone_mass_kg=np.where(zones[None, :] >= 0, load[entry][:, None] * zone_len[zi][None, :], 1.0),
+            air_temp_c=t_air[idx], air_rh_pct=rh[idx],
+            infeed_temp_c=np.asarray(infeed_temp_c, float)[entry],
+            infeed_water_db=_as_column(self.tables.infeed_water_db(moist), out_rows.size),
+            traceable=ok, residence_s=times[:, -1] - times[:, 0], entry_time_s=times[:, 0],
+            max_hold_s=hold, belt_speed_m_per_min=speed[out_rows], belt_load_kg_per_m=load[out_rows],
+            now_air_temp_c=t_air[out_rows], forward_kw=fwd[out_rows], reflected_kw=refl[out_rows])
+
+    def run(self, passages: "Passages", keep_history=False, param_overrides=None) -> Outcome:
+        """The outfeed of the parcels described by ``passages`` (NaN where not traceable)."""
+        p = passages
+        traj = self.integrate(dt_s=p.dt_s, zone_net_kw=p.zone_net_kw, zone_mass_kg=p.zone_mass_kg,
+                              air_temp_c=p.air_temp_c, air_rh_pct=p.air_rh_pct, infeed_temp_c=p.infeed_temp_c,
+                              infeed_water_db=p.infeed_water_db, keep_history=keep_history,
+                              param_overrides=param_overrides)
+        pv = {**self.parameters.values, **(param_overrides or {})}
+        out = _model_outcome(self, traj, speed=p.belt_speed_m_per_min, load=p.belt_load_kg_per_m,
+                             infeed_temp_c=p.infeed_temp_c, air_temp_c=p.now_air_temp_c,
+                             residence_s=p.residence_s, forward_kw=p.forward_kw, reflected_kw=p.reflected_kw,
+                             electric_kw=_electric_kw(self, p.forward_kw, p.now_air_temp_c, pv),
+                             water_in_db=p.infeed_water_db)
         for name in ("outfeed_temp_mean_c", "outfeed_temp_min_c", "outfeed_temp_max_c", "core_temp_c",
                      "hottest_temp_c", "coldest_temp_c", "hottest_during_passage_c", "mean_temp_c",
                      "outfeed_moisture_pct_wb"):
             value = getattr(out, name)
             if value is not None:
-                setattr(out, name, np.where(ok, value, np.nan))
+                setattr(out, name, np.where(p.traceable, value, np.nan))
         return out
+
+    def series(self, *, keep_history=False, **record) -> Outcome:
+        """Outfeed over time from logged settings: each parcel meets the settings of its own passage.
+
+        Takes the record arguments of :meth:`passages`. Parcels that entered before the
+        record starts come out as NaN.
+        """
+        return self.run(self.passages(**record), keep_history=keep_history)
+
+
+@dataclass(frozen=True)
+class Passages:
+    """Per-parcel, per-sub-step inputs of the integrator, from a logged record (arrays (T, S) or (T,))."""
+
+    dt_s: np.ndarray
+    zone_net_kw: np.ndarray
+    zone_mass_kg: np.ndarray
+    air_temp_c: np.ndarray
+    air_rh_pct: np.ndarray
+    infeed_temp_c: np.ndarray
+    infeed_water_db: np.ndarray
+    traceable: np.ndarray  # parcel entered after the record started
+    residence_s: np.ndarray
+    entry_time_s: np.ndarray
+    max_hold_s: np.ndarray  # longest gap between a sub-step and the log sample held for it
+    belt_speed_m_per_min: np.ndarray  # at the outfeed time (for throughput and energy now)
+    belt_load_kg_per_m: np.ndarray
+    now_air_temp_c: np.ndarray
+    forward_kw: np.ndarray
+    reflected_kw: np.ndarray
+
+    def take(self, rows) -> "Passages":
+        """The passages of some parcels only (index array or boolean mask)."""
+        return Passages(**{k: getattr(self, k)[rows] for k in self.__dataclass_fields__})
+
+    @staticmethod
+    def concat(parts: list["Passages"]) -> "Passages":
+        return Passages(**{k: np.concatenate([getattr(p, k) for p in parts]) for k in Passages.__dataclass_fields__})
+
+    def __len__(self) -> int:
+        return int(self.dt_s.shape[0])
 
 
 def _equilibrium_water_db(tables: ProductTables, product_temp_c, air_temp_c, air_rh_pct, loc=None):

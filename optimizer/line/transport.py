@@ -55,7 +55,7 @@ def time_at_travel(time_s, travel_m, target_m):
     return out
 
 
-def passage_times(time_s, belt_speed_m_per_min, positions_m, tunnel_length_m):
+def passage_times(time_s, belt_speed_m_per_min, positions_m, tunnel_length_m, rows=None):
     """Times at which the parcel leaving the tunnel at each sample time passed each position.
 
     Parameters
@@ -66,13 +66,16 @@ def passage_times(time_s, belt_speed_m_per_min, positions_m, tunnel_length_m):
         Positions along the tunnel [m from the infeed], e.g. zone boundaries.
     tunnel_length_m : float
         Infeed to outfeed [m].
+    rows : index array, optional
+        Only the parcels leaving at these samples (default: every sample).
 
     Returns
     -------
-    array (n, k) of times [s]; NaN where the parcel entered before the record starts.
+    array (n or len(rows), k) of times [s]; NaN where the parcel entered before the record starts.
     """
     travel = belt_travel_m(time_s, belt_speed_m_per_min)
     pos = np.asarray(positions_m, dtype=float)
     # a position at (or, by round-off, just past) the outfeed is the parcel's present position
-    target = np.minimum(travel[:, None] - (tunnel_length_m - pos[None, :]), travel[:, None])
+    now = travel if rows is None else travel[rows]
+    target = np.minimum(now[:, None] - (tunnel_length_m - pos[None, :]), now[:, None])
     return time_at_travel(time_s, travel, target.ravel()).reshape(target.shape)

@@ -20,7 +20,7 @@ from .dielectric import (
 )
 from .thermal import (
     apparent_specific_heat_j_per_kg_k,
-    default_bound_water_fraction,
+    bound_water_mass_fraction,
     density_kg_per_m3,
     ice_mass_fraction,
     specific_enthalpy_j_per_kg,
@@ -44,9 +44,9 @@ __all__ = [
     "LATENT_HEAT_FUSION_J_PER_KG",
     "absorbed_power_density_w_per_m3",
     "apparent_specific_heat_j_per_kg_k",
+    "bound_water_mass_fraction",
     "brine_conductivity_s_per_m",
     "check_frequency_hz",
-    "default_bound_water_fraction",
     "density_kg_per_m3",
     "dynamic_viscosity_pa_s",
     "food_permittivity",

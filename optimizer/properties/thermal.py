@@ -64,18 +64,33 @@ BOUND_WATER_PER_PROTEIN = 0.4
 _SOLIDS = ("protein", "fat", "carbohydrate", "fiber", "ash")
 
 
-def default_bound_water_fraction(comp: Composition):
-    """Unfreezable water after Schwartzberg (1976), x_b = 0.4 x_protein [kg kg⁻¹].
+def bound_water_mass_fraction(comp: Composition, bound_water_fraction=None):
+    """Unfreezable (bound) water of the product [kg kg⁻¹].
 
     Parameters
     ----------
     comp : Composition
-        Mass fractions [kg kg⁻¹].
+        Mass fractions [kg kg⁻¹]; fields may be arrays.
+    bound_water_fraction : float, array_like or None
+        A known value [kg kg⁻¹ of product]; None for Schwartzberg's
+        x_b = 0.4 x_protein.
 
     Returns
     -------
     float or ndarray
-        Bound-water mass fraction of the product [kg kg⁻¹].
+        x_b [kg kg⁻¹], capped at the water content.
+
+    Raises
+    ------
+    ValueError
+        If the composition is invalid or ``bound_water_fraction`` is negative
+        or not finite.
+
+    Notes
+    -----
+    Bound water never freezes and, in the dielectric model, dissolves no salt.
+    0.4 kg per kg of protein suits meat and fish; starchy products bind more
+    water than their protein suggests, so pass a measured value for them.
 
     References
     ----------
@@ -84,10 +99,20 @@ def default_bound_water_fraction(comp: Composition):
 
     Examples
     --------
-    >>> round(float(default_bound_water_fraction(Composition(water=0.8, protein=0.2))), 3)
+    >>> round(float(bound_water_mass_fraction(Composition(water=0.8, protein=0.2))), 3)
     0.08
     """
-    return BOUND_WATER_PER_PROTEIN * np.asarray(comp.protein, dtype=float)
+    validate_composition(comp)
+    water = np.asarray(comp.water, dtype=float)
+    if bound_water_fraction is None:
+        bound = BOUND_WATER_PER_PROTEIN * np.asarray(comp.protein, dtype=float)
+    else:
+        bound = np.asarray(bound_water_fraction, dtype=float)
+        if np.any(~np.isfinite(bound)) or np.any(bound < 0):
+            raise ValueError(
+                f"bound_water_fraction = {bound_water_fraction} must be a finite mass fraction >= 0"
+            )
+    return _scalar_or_array(np.minimum(bound, water))
 
 
 def _solid_fractions(comp):
@@ -119,27 +144,18 @@ def _antiderivative(coefficients, t):
 
 
 def _freezing(comp, initial_freezing_point_c, bound_water_fraction):
-    """Validated (t_f or None, freezable water, bound water) of a composition."""
-    validate_composition(comp)
-    water = np.asarray(comp.water, dtype=float)
-    if bound_water_fraction is None:
-        bound = default_bound_water_fraction(comp)
-    else:
-        bound = np.asarray(bound_water_fraction, dtype=float)
-        if np.any(~np.isfinite(bound)) or np.any(bound < 0):
-            raise ValueError(
-                f"bound_water_fraction = {bound_water_fraction} must be a finite mass fraction >= 0"
-            )
-    bound = np.minimum(bound, water)
+    """Validated (t_f or None, freezable water x_w − x_b) of a composition."""
+    bound = np.asarray(bound_water_mass_fraction(comp, bound_water_fraction))
+    freezable = np.asarray(comp.water, dtype=float) - bound
     if initial_freezing_point_c is None:
-        return None, water - bound, bound
+        return None, freezable
     t_f = np.asarray(initial_freezing_point_c, dtype=float)
     if np.any(~np.isfinite(t_f)) or np.any(t_f >= 0.0) or np.any(t_f <= ENTHALPY_DATUM_C):
         raise ValueError(
             f"initial_freezing_point_c = {initial_freezing_point_c} °C must lie between "
             f"{ENTHALPY_DATUM_C:g} and 0 °C; pass None for a product that does not freeze"
         )
-    return t_f, water - bound, bound
+    return t_f, freezable
 
 
 def _ice(freezable, t, t_f):
@@ -148,7 +164,7 @@ def _ice(freezable, t, t_f):
 
 
 def _chen_coefficients(comp, freezable, t_f):
-    """A [J kg⁻¹ K⁻¹] and K [J kg⁻¹ K⁻¹] of Chen's h = (t − t_r)(A − K/t)."""
+    """A [J kg⁻¹ K⁻¹] and K [J kg⁻¹] of Chen's h = (t − t_r)(A − K/t), t in °C."""
     c0, c1 = CHEN_FROZEN_SPECIFIC_HEAT_J_PER_KG_K
     solids = 1.0 - np.asarray(comp.water, dtype=float)
     a = c0 + c1 * solids
@@ -249,7 +265,7 @@ def ice_mass_fraction(comp: Composition, temp_c, initial_freezing_point_c, bound
     >>> round(float(ice_mass_fraction(fish, -5.0, -1.0)), 4)
     0.5824
     """
-    t_f, freezable, _ = _freezing(comp, initial_freezing_point_c, bound_water_fraction)
+    t_f, freezable = _freezing(comp, initial_freezing_point_c, bound_water_fraction)
     t = np.asarray(temp_c, dtype=float)
     if t_f is None:
         return _scalar_or_array(np.zeros(np.broadcast_shapes(t.shape, freezable.shape)))
@@ -344,7 +360,7 @@ def specific_enthalpy_j_per_kg(comp: Composition, temp_c, initial_freezing_point
     >>> round(float(specific_enthalpy_j_per_kg(fish, -20.0, -1.0)) / 1e3, 1)
     42.1
     """
-    t_f, freezable, _ = _freezing(comp, initial_freezing_point_c, bound_water_fraction)
+    t_f, freezable = _freezing(comp, initial_freezing_point_c, bound_water_fraction)
     t = np.asarray(temp_c, dtype=float)
     unfrozen = _mixture_coefficients(comp)
     if t_f is None:
@@ -422,7 +438,7 @@ def temperature_from_enthalpy_c(comp: Composition, h_j_per_kg, initial_freezing_
     >>> round(float(temperature_from_enthalpy_c(fish, 42.1e3, -1.0)), 2)
     -20.0
     """
-    t_f, freezable, _ = _freezing(comp, initial_freezing_point_c, bound_water_fraction)
+    t_f, freezable = _freezing(comp, initial_freezing_point_c, bound_water_fraction)
     h = np.asarray(h_j_per_kg, dtype=float)
     unfrozen = _mixture_coefficients(comp)
     if t_f is None:
@@ -469,7 +485,7 @@ def apparent_specific_heat_j_per_kg_k(comp: Composition, temp_c, initial_freezin
     >>> round(float(apparent_specific_heat_j_per_kg_k(fish, -5.0, -1.0)))
     11516
     """
-    t_f, freezable, _ = _freezing(comp, initial_freezing_point_c, bound_water_fraction)
+    t_f, freezable = _freezing(comp, initial_freezing_point_c, bound_water_fraction)
     t = np.asarray(temp_c, dtype=float)
     unfrozen = _poly(_mixture_coefficients(comp), t)
     if t_f is None:
@@ -477,6 +493,21 @@ def apparent_specific_heat_j_per_kg_k(comp: Composition, temp_c, initial_freezin
     a, k = _chen_coefficients(comp, freezable, t_f)
     frozen = a - k * ENTHALPY_DATUM_C / np.minimum(t, t_f) ** 2
     return _scalar_or_array(np.where(t < t_f, frozen, unfrozen))
+
+
+def _specific_volumes(comp, temp_c, initial_freezing_point_c, bound_water_fraction):
+    """x_i/ρ_i(t) [m³ kg⁻¹] of liquid water, ice and each solid (salt: ash density)."""
+    t_f, freezable = _freezing(comp, initial_freezing_point_c, bound_water_fraction)
+    t = np.asarray(temp_c, dtype=float)
+    ice = 0.0 if t_f is None else _ice(freezable, t, t_f)
+    volumes = {
+        "water": (np.asarray(comp.water, dtype=float) - ice) / _poly(CHOI_OKOS_DENSITY_KG_PER_M3["water"], t),
+        "ice": ice / _poly(CHOI_OKOS_DENSITY_KG_PER_M3["ice"], t),
+    }
+    for name in ("protein", "fat", "carbohydrate", "fiber", "ash", "salt"):
+        density = _poly(CHOI_OKOS_DENSITY_KG_PER_M3["ash" if name == "salt" else name], t)
+        volumes[name] = np.asarray(getattr(comp, name), dtype=float) / density
+    return volumes
 
 
 def volume_fractions(comp: Composition, temp_c, initial_freezing_point_c=None, bound_water_fraction=None):
@@ -513,17 +544,7 @@ def volume_fractions(comp: Composition, temp_c, initial_freezing_point_c=None, b
     >>> round(float(volume_fractions(fish, -20.0, -1.0)["ice"]), 3)
     0.745
     """
-    t_f, freezable, _ = _freezing(comp, initial_freezing_point_c, bound_water_fraction)
-    t = np.asarray(temp_c, dtype=float)
-    water = np.asarray(comp.water, dtype=float)
-    ice = 0.0 if t_f is None else _ice(freezable, t, t_f)
-    specific_volumes = {
-        "water": (water - ice) / _poly(CHOI_OKOS_DENSITY_KG_PER_M3["water"], t),
-        "ice": ice / _poly(CHOI_OKOS_DENSITY_KG_PER_M3["ice"], t),
-    }
-    for name in ("protein", "fat", "carbohydrate", "fiber", "ash", "salt"):
-        density = _poly(CHOI_OKOS_DENSITY_KG_PER_M3["ash" if name == "salt" else name], t)
-        specific_volumes[name] = np.asarray(getattr(comp, name), dtype=float) / density
+    specific_volumes = _specific_volumes(comp, temp_c, initial_freezing_point_c, bound_water_fraction)
     total = sum(specific_volumes.values())
     return {name: _scalar_or_array(np.asarray(v / total)) for name, v in specific_volumes.items()}
 
@@ -561,14 +582,8 @@ def density_kg_per_m3(comp: Composition, temp_c, initial_freezing_point_c=None, 
     >>> round(float(density_kg_per_m3(fish, 5.0)))
     1049
     """
-    t_f, freezable, _ = _freezing(comp, initial_freezing_point_c, bound_water_fraction)
-    t = np.asarray(temp_c, dtype=float)
-    ice = 0.0 if t_f is None else _ice(freezable, t, t_f)
-    specific_volume = (np.asarray(comp.water, dtype=float) - ice) / _poly(CHOI_OKOS_DENSITY_KG_PER_M3["water"], t)
-    specific_volume = specific_volume + ice / _poly(CHOI_OKOS_DENSITY_KG_PER_M3["ice"], t)
-    for name, x in _solid_fractions(comp).items():
-        specific_volume = specific_volume + x / _poly(CHOI_OKOS_DENSITY_KG_PER_M3[name], t)
-    return _scalar_or_array(1.0 / specific_volume)
+    specific_volumes = _specific_volumes(comp, temp_c, initial_freezing_point_c, bound_water_fraction)
+    return _scalar_or_array(np.asarray(1.0 / sum(specific_volumes.values())))
 
 
 def thermal_conductivity_w_per_m_k(comp: Composition, temp_c, initial_freezing_point_c=None,

@@ -1,9 +1,10 @@
 """Properties of pure water and steam that the food models need.
 
-Saturation pressure and the saturated densities come from the IAPWS
-auxiliary equations (Wagner & Pruss 1993), and the latent heat of
-vaporisation from them by the Clausius–Clapeyron equation, which is exact for
-a pure substance. The viscosity of liquid water is a Vogel-type correlation.
+Saturation pressure and the saturated densities follow the IAPWS auxiliary
+equations (Wagner & Pruss 1993), and the latent heat of vaporisation follows
+from them by the Clausius–Clapeyron equation, exact for a pure substance.
+The viscosity of liquid water (for the ionic conductivity of brine) is a
+Vogel-type correlation.
 """
 from __future__ import annotations
 
