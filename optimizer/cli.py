@@ -107,6 +107,21 @@ def cmd_simulate(args) -> int:
     return EXIT_OK
 
 
+def cmd_serve(args) -> int:
+    from dashboard.app import create_app
+    from dashboard.data import open_reader
+
+    plant, _ = load_plant(args.config)
+    app = create_app(plant, open_reader(plant))
+    if args.host not in ("127.0.0.1", "localhost", "::1"):
+        logging.getLogger(__name__).warning(
+            "serving on %s: anyone who can reach it sees the plant's data; put it behind a production "
+            "server with authentication (see DEVELOPERS.md)", args.host)
+    print(f"beltwave dashboard on http://{args.host}:{args.port}/  (Ctrl+C stops it)")
+    app.run(host=args.host, port=args.port, debug=False)
+    return EXIT_OK
+
+
 def build_parser() -> argparse.ArgumentParser:
     parser = argparse.ArgumentParser(prog="beltwave", description=(
         "Fit, simulate and tune microwave/RF conveyor tempering and drying lines from historian logs."))
@@ -135,6 +150,12 @@ def build_parser() -> argparse.ArgumentParser:
     sim.add_argument("--air-rh-pct", type=float, help="dryers: tunnel air relative humidity [%%]")
     sim.add_argument("--json", action="store_true", help="print one JSON object")
     sim.set_defaults(func=cmd_simulate)
+
+    srv = sub.add_parser("serve", help="start the dashboard (reads the store, never writes models)")
+    srv.add_argument("--config", required=True, help="plant description (TOML)")
+    srv.add_argument("--host", default="127.0.0.1", help="address to listen on (default: this machine only)")
+    srv.add_argument("--port", type=int, default=8050, help="port (default 8050)")
+    srv.set_defaults(func=cmd_serve)
     return parser
 
 

@@ -1,0 +1,1 @@
+"""One module per page; each has ``layout(ctx, **query)`` and ``register(app, ctx)``."""

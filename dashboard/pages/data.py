@@ -1,0 +1,15 @@
+"""Page placeholder until the store is wired in."""
+from __future__ import annotations
+
+from ..layout import notice
+from dash import html
+
+
+def layout(ctx, **_):
+    if ctx.reader is None:
+        return html.Div([html.H1("data"), notice("No store yet: run the nightly job first (beltwave nightly --config FILE).", "warn", "empty-store")])
+    return html.Div([html.H1("data")])
+
+
+def register(app, ctx):
+    return None
