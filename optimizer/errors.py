@@ -29,3 +29,19 @@ class FitError(BeltwaveError):
 
 class InfeasiblePlanError(BeltwaveError):
     """No setting meets the targets under the constraints."""
+
+
+class LogFileError(DataError):
+    """A whole log file cannot be read (empty, binary, unknown layout, missing required column).
+
+    Row-level problems never raise: those rows go to the quarantine with a reason.
+    """
+
+    def __init__(self, path, message: str):
+        self.path = str(path)
+        self.reason = message
+        super().__init__(f"{self.path}: {message}")
+
+
+class StoreError(DataError):
+    """The store cannot be opened or written as asked (schema version, read-only open, bad URL)."""
