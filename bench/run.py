@@ -12,7 +12,7 @@ import importlib
 import json
 import sys
 
-BENCHMARKS = ("bench_line", "bench_ingest")
+BENCHMARKS = ("bench_line", "bench_ingest", "bench_recommend", "bench_fit", "bench_nightly", "bench_dashboard")
 
 
 def main(argv=None) -> int:

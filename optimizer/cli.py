@@ -151,6 +151,18 @@ def build_parser() -> argparse.ArgumentParser:
     sim.add_argument("--json", action="store_true", help="print one JSON object")
     sim.set_defaults(func=cmd_simulate)
 
+    from .cli_fit import add_fit_parsers
+    from .cli_demo import add_demo_parser
+    from .cli_ingest import add_ingest_parsers
+    from .cli_nightly import add_nightly_parser
+    from .cli_recommend import add_recommend_parser
+
+    add_ingest_parsers(sub)
+    add_recommend_parser(sub)
+    add_fit_parsers(sub)
+    add_nightly_parser(sub)
+    add_demo_parser(sub)
+
     srv = sub.add_parser("serve", help="start the dashboard (reads the store, never writes models)")
     srv.add_argument("--config", required=True, help="plant description (TOML)")
     srv.add_argument("--host", default="127.0.0.1", help="address to listen on (default: this machine only)")
@@ -162,8 +174,11 @@ def build_parser() -> argparse.ArgumentParser:
 def main(argv: list[str] | None = None) -> int:
     parser = build_parser()
     args = parser.parse_args(argv)
-    logging.basicConfig(level=logging.INFO if args.verbose else logging.WARNING,
-                        format="%(asctime)s %(levelname)s %(name)s: %(message)s")
+    handler = logging.StreamHandler(sys.stderr)
+    handler.setLevel(logging.INFO if args.verbose else logging.WARNING)
+    handler.setFormatter(logging.Formatter("%(asctime)s %(levelname)s %(name)s: %(message)s"))
+    logging.getLogger().addHandler(handler)
+    logging.getLogger().setLevel(logging.INFO)  # files (the nightly log) get INFO; the terminal what -v asks
     try:
         return int(args.func(args) or 0)
     except BeltwaveError as exc:

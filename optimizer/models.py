@@ -76,13 +76,17 @@ class FittedModel:
         return out
 
     def to_json(self) -> dict:
+        """Plain JSON; numbers rounded to 10 significant digits, so that the same fit done on
+        another machine or process (other BLAS threading, last-bit differences) stores the same model."""
         return {
-            "line_id": self.line_id, "product_id": self.product_id, "values": dict(self.values),
+            "line_id": self.line_id, "product_id": self.product_id,
+            "values": {k: _round(v) for k, v in self.values.items()},
             "free": list(self.free),
-            "covariance": None if self.covariance is None else np.asarray(self.covariance).tolist(),
+            "covariance": None if self.covariance is None else
+            [[_round(x) for x in row] for row in np.asarray(self.covariance, float)],
             "reflection": {"base_fraction": self.reflection.base_fraction,
                            "light_load_kg": self.reflection.light_load_kg},
-            "sensor_offsets": dict(self.sensor_offsets), "status": self.status,
+            "sensor_offsets": {k: _round(v) for k, v in self.sensor_offsets.items()}, "status": self.status,
         }
 
     @classmethod
@@ -94,3 +98,8 @@ class FittedModel:
             reflection=ReflectionRelation(**data.get("reflection", {})),
             sensor_offsets=dict(data.get("sensor_offsets", {})), status=data.get("status", "fitted"),
             version_id=version_id)
+
+
+def _round(x: float) -> float:
+    x = float(x)
+    return float(f"{x:.10g}") if np.isfinite(x) else x

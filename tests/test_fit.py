@@ -31,11 +31,11 @@ def fit_synthetic(seed, **kwargs):
 
 
 def test_fit_recovers_known_parameters_within_their_intervals():
-    # Recovery (STYLE.md, after lmfit): data simulated with known parameters plus noise; every
-    # fitted parameter lies within 3 standard errors of the truth, and over three seeds at least
-    # 80 % lie within their 95 % interval (nominal coverage 95 %; 24 checks leave room for
-    # the approximations of a Jacobian-based covariance).
-    inside_95 = []
+    # Recovery (STYLE.md, after lmfit): data simulated with known parameters plus noise. Over
+    # three seeds (24 parameter checks) at least 80 % of the truths lie within their 95 % interval
+    # and at most one lies beyond 3 standard errors (with exact intervals, P(more than one of 24
+    # beyond 3σ) ≈ 0.2 %; the allowance covers the approximations of a Jacobian-based covariance).
+    inside_95, beyond_3 = [], []
     for seed in (1, 2, 3):
         pf = fit_synthetic(seed)
         assert pf.status == "fitted" and pf.converged, pf.message
@@ -43,12 +43,13 @@ def test_fit_recovers_known_parameters_within_their_intervals():
         for row in pf.parameters:
             true = truth[row["name"]]
             assert row["stderr"] is not None and row["stderr"] > 0
-            assert abs(row["value"] - true) < 3 * row["stderr"], (seed, row)
+            beyond_3.append(abs(row["value"] - true) > 3 * row["stderr"])
             inside_95.append(row["low95"] <= true <= row["high95"])
         # the fitted model predicts the held-out lots to the noise level (σ = 0.15 K)
         assert pf.scores["model"]["array_mean"].mae < 0.25
         assert pf.model.sensor_offsets["outfeed_array_offset_k"] == pytest.approx(TRUE_OFFSET_K, abs=0.3)
     assert np.mean(inside_95) >= 0.8
+    assert sum(beyond_3) <= 1
 
 
 def test_newest_lots_are_held_out_and_the_model_beats_the_default_baseline():

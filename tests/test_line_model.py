@@ -387,3 +387,26 @@ def test_specific_energy_counts_generators_at_their_efficiency_and_auxiliaries()
     out = model.steady(belt_speed_m_per_min=0.5, zone_forward_kw=[10, 10, 10, 10, 10], belt_load_kg_per_m=50.0)
     flow_t_per_h = 50.0 * 0.5 * 60 / 1000
     assert out.specific_energy_kwh_per_t[0] == pytest.approx((50 / 0.8 + 5.0) / flow_t_per_h, rel=1e-12)
+
+
+def test_a_standing_belt_in_the_dryer_stays_physical():
+    # A 15-minute belt stop with the generators interlocked off: the parcels in the tunnel sit in
+    # 80 °C air. Their temperature must stay between the infeed and air temperatures (second law:
+    # no power, nothing hotter than the air) and they keep drying; nothing may become NaN.
+    model = LineModel(DRYER, FUSILLI)
+    n = 600
+    t = np.arange(n) * 10.0
+    speed = np.full(n, 0.5)
+    fwd = np.tile([6.0, 6, 5, 4, 3, 2], (n, 1))
+    stop = (t >= 3000) & (t < 3900)
+    speed[stop] = 0.0
+    fwd[stop] = 0.0
+    out = model.series(time_s=t, belt_speed_m_per_min=speed, zone_forward_kw=fwd, infeed_temp_c=np.full(n, 35.0),
+                       belt_load_kg_per_m=np.full(n, 8.0), air_temp_c=np.full(n, 80.0),
+                       infeed_moisture_pct_wb=np.full(n, 31.0), air_rh_pct=np.full(n, 25.0))
+    after = np.isfinite(out.core_temp_c)
+    assert after.sum() > 100
+    temps = out.compartment_temp_c[after]
+    assert np.all(np.isfinite(temps))
+    assert temps.min() >= 35.0 - 1e-6 and out.hottest_during_passage_c[after].max() <= 100.0 + 1e-6
+    assert np.all(out.outfeed_moisture_pct_wb[after] < 31.0)

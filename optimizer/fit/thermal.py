@@ -25,6 +25,9 @@ OFFSET_SPECS = {  # name: (unit, bounds, scale, meaning)
     "outfeed_array_offset_k": ("K", (-3.0, 3.0), 0.3, "outfeed array reading minus product temperature"),
     "moisture_meter_offset_pct": ("% points", (-3.0, 3.0), 0.3, "moisture meter reading minus laboratory moisture"),
 }
+#: Prior standard deviation of every parameter around its default, in units of its scale:
+#: wide (a few times the typical size) so the data, not the prior, set what they can.
+PRIOR_SD_SCALES = 4.0
 #: Typical size of each parameter, the unit of the optimiser's scaled coordinates.
 SCALES = {"cavity_loss_equiv_kg": None, "air_htc_w_per_m2_k": 10.0, "loss_factor_scale": 0.3,
           "field_nonuniformity": 0.1, "freezing_point_shift_k": 0.5, "drying_rate_per_s": None}
@@ -137,17 +140,47 @@ class LineProblem:
         out = model.run(obs.passages, param_overrides=overrides)
         return channel_predictions(out, offsets)
 
+    def _product_residuals(self, values, pid) -> np.ndarray:
+        obs = self.obs[pid]
+        pred = self.predict(values, pid)
+        parts = []
+        for ch, reading in obs.readings.items():
+            ok = np.isfinite(reading)
+            if ok.any():
+                parts.append(np.nan_to_num((pred[ch][ok] - reading[ok]) / self.sigma[ch], nan=1e3))
+        return np.concatenate(parts) if parts else np.zeros(0)
+
+    def _prior_residuals(self, x) -> np.ndarray:
+        """Weak priors around the first-principles defaults (sd = PRIOR_SD_SCALES × scale).
+
+        They decide nothing the data decide, but keep directions the data cannot see (e.g.
+        cavity losses against loss factor at constant load) from wandering to their bounds
+        and give every parameter a finite variance.
+        """
+        return np.asarray(x) / PRIOR_SD_SCALES
+
     def residuals(self, x):
         values = self.values(x)
-        parts = []
-        for pid, obs in self.obs.items():
-            pred = self.predict(values, pid)
-            for ch, reading in obs.readings.items():
-                ok = np.isfinite(reading)
-                if ok.any():
-                    r = (pred[ch][ok] - reading[ok]) / self.sigma[ch]
-                    parts.append(np.nan_to_num(r, nan=1e3))
-        return np.concatenate(parts)
+        return np.concatenate([*(self._product_residuals(values, pid) for pid in self.obs), self._prior_residuals(x)])
+
+    def jacobian(self, x, step: float = 1e-3):
+        """Forward differences, recomputing only the products a parameter acts on."""
+        values = self.values(x)
+        base = {pid: self._product_residuals(values, pid) for pid in self.obs}
+        offsets = np.cumsum([0] + [base[p].size for p in self.obs])
+        n_data = offsets[-1]
+        J = np.zeros((n_data + len(x), len(x)))
+        lo, hi = self.bounds()
+        for j, u in enumerate(self.unknowns):
+            h = step if x[j] + step <= hi[j] else -step
+            xj = np.array(x, float)
+            xj[j] += h
+            vj = self.values(xj)
+            for k, pid in enumerate(self.obs):
+                if u.product_id is None or u.product_id == pid:
+                    J[offsets[k]:offsets[k + 1], j] = (self._product_residuals(vj, pid) - base[pid]) / h
+            J[n_data + j, j] = 1.0 / PRIOR_SD_SCALES
+        return J
 
     def residuals_by_channel(self, values):
         out = {}
@@ -182,8 +215,8 @@ def solve(problem: LineProblem, *, max_nfev: int = 60, reweight: bool = True) ->
     x = np.clip(problem.x0(), lo, hi)
     res = None
     for attempt in range(2 if reweight else 1):
-        res = least_squares(problem.residuals, x, bounds=(lo, hi), loss="soft_l1", f_scale=2.0,
-                            diff_step=1e-3, max_nfev=max_nfev, x_scale=1.0)
+        res = least_squares(problem.residuals, x, jac=problem.jacobian, bounds=(lo, hi), loss="soft_l1",
+                            f_scale=2.0, max_nfev=max_nfev, x_scale=1.0)
         x = res.x
         if attempt == 0 and reweight:
             by_ch = problem.residuals_by_channel(problem.values(x))

@@ -43,6 +43,9 @@ DRYING_ACTIVATION_J_PER_MOL = 30e3
 DRYING_REFERENCE_TEMP_C = 80.0
 GAS_CONSTANT = 8.314462618
 BOILING_TEMP_C = 100.0
+#: Longest integration step [s]: a parcel standing in a zone for minutes (belt stop) is
+#: integrated in pieces this long, so the explicit absorption and evaporation stay stable.
+MAX_STEP_S = 120.0
 #: GAB sorption isotherm of starchy foods (monolayer X_m [kg/kg db], C, K), typical values
 #: from memory; used only for the equilibrium moisture the Lewis rate relaxes to.
 GAB_STARCHY = (0.07, 10.0, 0.8)
@@ -491,46 +494,49 @@ class LineModel:
             hist_w[:, 0] = water
         eye = np.eye(3)
         for k in range(s):
-            dt = dt_s[:, k]
-            t_air = air_temp_c[:, k]
-            loc = tb.locate(temp)
-            r = self._rates(coef, temp, water, zone_net_kw[:, k], zone_mass_kg[:, k], t_air, air_rh_pct[:, k], loc)
-            cav_loss += r.cavity_w_per_kg_dm * dt
-            # evaporation (explicit), dryers only; never below the equilibrium moisture
-            if drying:
-                d_water = np.minimum(r.evaporation_per_s * dt[:, None], np.maximum(water - r.water_eq_db, 0.0))
-                e_latent = d_water * tb.latent_heat(temp, loc)
-                e_carried = d_water * tb.water_enthalpy(temp, loc)  # the vapour leaves with its enthalpy
-                water = water - d_water
-            else:
-                d_water = e_latent = e_carried = np.zeros_like(temp)
-            # heat exchange, implicit in the temperature change u (linearised on dH/dT)
-            cap = tb.heat_capacity(temp, water, loc)  # J K-1 per kg dm
-            G, air_mu = r.conductance, r.air_w_per_k * mu
-            drive = (temp[:, None, :] - temp[:, :, None])  # T_k − T_j at [j, k]
-            rhs = dt[:, None] * (mu * r.absorbed_w_per_kg_dm + air_mu * (t_air[:, None] - temp)
-                                 + (G * drive).sum(axis=2)) - mu * e_latent
-            A = (mu * cap + dt[:, None] * (air_mu + G.sum(axis=2)))[:, :, None] * eye - dt[:, None, None] * G
-            u = np.linalg.solve(A, rhs[:, :, None])[:, :, 0]
-            absorbed += dt * (mu * r.absorbed_w_per_kg_dm).sum(axis=1)
-            air_gain += dt * (air_mu * (t_air[:, None] - temp - u)).sum(axis=1)
-            evap_energy += (mu * (e_latent + e_carried)).sum(axis=1)
-            evaporated += (mu * d_water).sum(axis=1)
-            # H = H_dm(T) + X h_w(T): water leaving at T lowers H by d·h_w; the rest is c·u,
-            # which already holds the latent heat taken from the product.
-            enth = enth - e_carried + cap * u
-            temp = tb.temperature(enth, water, guess_c=temp + u)
-            if drying and np.any(temp > BOILING_TEMP_C):  # flash off what would lie above boiling
-                h_boil = tb.enthalpy(np.full_like(temp, BOILING_TEMP_C), water)
-                hfg = float(tb.latent_heat(BOILING_TEMP_C))
-                flash = np.minimum(np.maximum(enth - h_boil, 0.0) / hfg, np.maximum(water, 0.0))
-                flash_energy = flash * (hfg + float(tb.water_enthalpy(BOILING_TEMP_C)))
-                water = water - flash
-                enth = enth - flash_energy
-                evap_energy += (mu * flash_energy).sum(axis=1)
-                evaporated += (mu * flash).sum(axis=1)
-                temp = tb.temperature(enth, water, guess_c=np.minimum(temp, BOILING_TEMP_C))
-            max_temp = np.maximum(max_temp, temp.max(axis=1))
+            # long stays (a standing belt) are cut into pieces the explicit terms can take
+            pieces = max(1, int(np.ceil(np.nanmax(dt_s[:, k], initial=0.0) / MAX_STEP_S)))
+            for _ in range(pieces):
+                dt = dt_s[:, k] / pieces
+                t_air = air_temp_c[:, k]
+                loc = tb.locate(temp)
+                r = self._rates(coef, temp, water, zone_net_kw[:, k], zone_mass_kg[:, k], t_air, air_rh_pct[:, k], loc)
+                cav_loss += r.cavity_w_per_kg_dm * dt
+                # evaporation (explicit), dryers only; never below the equilibrium moisture
+                if drying:
+                    d_water = np.minimum(r.evaporation_per_s * dt[:, None], np.maximum(water - r.water_eq_db, 0.0))
+                    e_latent = d_water * tb.latent_heat(temp, loc)
+                    e_carried = d_water * tb.water_enthalpy(temp, loc)  # the vapour leaves with its enthalpy
+                    water = water - d_water
+                else:
+                    d_water = e_latent = e_carried = np.zeros_like(temp)
+                # heat exchange, implicit in the temperature change u (linearised on dH/dT)
+                cap = tb.heat_capacity(temp, water, loc)  # J K-1 per kg dm
+                G, air_mu = r.conductance, r.air_w_per_k * mu
+                drive = (temp[:, None, :] - temp[:, :, None])  # T_k − T_j at [j, k]
+                rhs = dt[:, None] * (mu * r.absorbed_w_per_kg_dm + air_mu * (t_air[:, None] - temp)
+                                     + (G * drive).sum(axis=2)) - mu * e_latent
+                A = (mu * cap + dt[:, None] * (air_mu + G.sum(axis=2)))[:, :, None] * eye - dt[:, None, None] * G
+                u = np.linalg.solve(A, rhs[:, :, None])[:, :, 0]
+                absorbed += dt * (mu * r.absorbed_w_per_kg_dm).sum(axis=1)
+                air_gain += dt * (air_mu * (t_air[:, None] - temp - u)).sum(axis=1)
+                evap_energy += (mu * (e_latent + e_carried)).sum(axis=1)
+                evaporated += (mu * d_water).sum(axis=1)
+                # H = H_dm(T) + X h_w(T): water leaving at T lowers H by d·h_w; the rest is c·u,
+                # which already holds the latent heat taken from the product.
+                enth = enth - e_carried + cap * u
+                temp = tb.temperature(enth, water, guess_c=temp + u)
+                if drying and np.any(temp > BOILING_TEMP_C):  # flash off what would lie above boiling
+                    h_boil = tb.enthalpy(np.full_like(temp, BOILING_TEMP_C), water)
+                    hfg = float(tb.latent_heat(BOILING_TEMP_C))
+                    flash = np.minimum(np.maximum(enth - h_boil, 0.0) / hfg, np.maximum(water, 0.0))
+                    flash_energy = flash * (hfg + float(tb.water_enthalpy(BOILING_TEMP_C)))
+                    water = water - flash
+                    enth = enth - flash_energy
+                    evap_energy += (mu * flash_energy).sum(axis=1)
+                    evaporated += (mu * flash).sum(axis=1)
+                    temp = tb.temperature(enth, water, guess_c=np.minimum(temp, BOILING_TEMP_C))
+                max_temp = np.maximum(max_temp, temp.max(axis=1))
             if keep_history:
                 hist_t[:, k + 1] = temp
                 hist_w[:, k + 1] = water

@@ -1,0 +1,391 @@
+"""The nightly job: ingest → fit → gate → recommend → publish, unattended, for years.
+
+``run_nightly`` composes the steps and records the run in the store. It holds a lock so
+two runs never overlap, is idempotent (a second run on the same data changes nothing),
+isolates failures per line × product, keeps the last good model and recommendations in
+place when anything fails, and tells someone (alerts in the store and the summary, and an
+optional hook command that receives them as JSON on stdin).
+
+Exit codes: 0 all good; 3 finished with warnings; 4 failed (some step or group could not
+be completed; the others were); 5 another run holds the lock.
+"""
+from __future__ import annotations
+
+import datetime as dt
+import fcntl
+import json
+import logging
+import os
+import shlex
+import subprocess
+import time
+import zlib
+from contextlib import contextmanager
+from dataclasses import dataclass, field
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+
+from .config import Plant
+from .errors import BeltwaveError, StoreError
+
+log = logging.getLogger(__name__)
+
+EXIT_OK, EXIT_WARNINGS, EXIT_FAILED, EXIT_LOCKED = 0, 3, 4, 5
+RECENT_DAYS = 14.0  # what "recent practice" and "products run recently" look back over [d]
+
+
+class LockHeld(BeltwaveError):
+    """Another nightly run holds the lock."""
+
+
+@dataclass
+class NightlyResult:
+    exit_code: int
+    status: str  # ok | warning | failed | locked | dry-run
+    summary: dict = field(default_factory=dict)
+    lines: list[str] = field(default_factory=list)  # one-line summary per line
+
+
+def plant_paths(plant: Plant) -> dict[str, Path]:
+    """Lock and log files: from ``[nightly]`` or beside the SQLite store (else the config's folder)."""
+    nightly = plant.sections.get("nightly", {})
+    base = plant.source.parent
+    if plant.store_url.startswith("sqlite:///"):
+        base = Path(plant.store_url[len("sqlite:///"):]).parent
+    resolve = lambda key, default: (plant.source.parent / nightly[key]).resolve() if key in nightly else base / default  # noqa: E731
+    return {"lock": resolve("lock_file", "nightly.lock"), "log": resolve("log_file", "nightly.log")}
+
+
+@contextmanager
+def exclusive_lock(path: Path):
+    """A non-blocking exclusive lock on ``path`` (released when the process ends, even by SIGKILL)."""
+    path.parent.mkdir(parents=True, exist_ok=True)
+    fh = open(path, "a+")
+    try:
+        fcntl.flock(fh.fileno(), fcntl.LOCK_EX | fcntl.LOCK_NB)
+    except BlockingIOError:
+        fh.close()
+        raise LockHeld(f"another nightly run holds the lock {path}; this run did nothing") from None
+    try:
+        fh.seek(0)
+        fh.truncate()
+        fh.write(f"{os.getpid()}\n")
+        fh.flush()
+        yield
+    finally:
+        fcntl.flock(fh.fileno(), fcntl.LOCK_UN)
+        fh.close()
+
+
+class SerialExecutor:
+    """Runs tasks one after another in this process."""
+
+    name = "serial"
+
+    def map(self, fn, *iterables):
+        return [fn(*args) for args in zip(*iterables)]
+
+    def close(self):
+        return None
+
+
+class DaskExecutor:
+    """Runs tasks on Dask distributed: an existing scheduler, or a local cluster of ``workers``."""
+
+    def __init__(self, scheduler: str | None = None, workers: int | None = None):
+        from dask.distributed import Client, LocalCluster
+
+        self.cluster = None
+        if scheduler:
+            self.client = Client(scheduler)
+            self.name = f"dask {scheduler}"
+        else:
+            self.cluster = LocalCluster(n_workers=workers or 2, threads_per_worker=1, dashboard_address=None,
+                                        host="127.0.0.1", processes=True)
+            self.client = Client(self.cluster)
+            self.name = f"dask local cluster of {workers or 2}"
+
+    def map(self, fn, *iterables):
+        # tasks come wrapped by _safe: a failing group returns a _Failure instead of raising
+        return self.client.gather(self.client.map(fn, *iterables, pure=False))
+
+    def close(self):
+        self.client.close()
+        if self.cluster is not None:
+            self.cluster.close()
+
+
+@dataclass
+class _Failure:
+    error: BaseException
+
+
+def _safe(fn):
+    """Wrap a task so that an exception comes back as a value (one group's failure stops no other)."""
+    def run(*args):
+        try:
+            return fn(*args)
+        except Exception as exc:  # noqa: BLE001 - reported per group, never swallowed
+            log.exception("task failed")
+            return _Failure(exc)
+    run.__name__ = fn.__name__
+    return run
+
+
+def _seed(*parts) -> int:
+    """A seed that is the same in every process for the same inputs (Python's hash is not)."""
+    return zlib.crc32("|".join(map(str, parts)).encode())
+
+
+def recommend_task(plant: Plant, line_id: str, product_id: str, fitted, recent, entry, plan_date: str):
+    """One robust recommendation as a plain-JSON record (pure; runs on a worker when scaled out)."""
+    from .recommend import recommend, recommend_arguments, recommend_options
+
+    line, product = plant.line(line_id), plant.product(product_id)
+    conditions = {}
+    if entry is not None:
+        if entry.expected_infeed_temp_c is not None:
+            conditions["infeed_temp_c"] = entry.expected_infeed_temp_c
+        if entry.expected_belt_load_kg_per_m is not None:
+            conditions["belt_load_kg_per_m"] = entry.expected_belt_load_kg_per_m
+    rec = recommend(line, product, fitted, conditions=conditions or None, recent_practice=recent,
+                    economics=plant.economics,
+                    planned_tonnes_per_day=entry.planned_tonnes if entry else None,
+                    planned_hours_per_day=entry.planned_hours if entry else None,
+                    rng=np.random.default_rng(_seed(line_id, product_id, plan_date, fitted.version_id)),
+                    **recommend_arguments(recommend_options(plant)))
+    return rec.to_json()
+
+
+def _fit_task(plant, line_id, products, samples, qa, incumbents):
+    from .train import fit_task
+
+    return fit_task(plant, line_id, products, samples, qa, incumbents)
+
+
+def recent_samples(store, line_id: str, product_id: str) -> pd.DataFrame:
+    """The product's samples of the last RECENT_DAYS days of the line's record."""
+    samples = store.samples(line_id, product_id)
+    if samples.empty:
+        return samples
+    newest = samples["timestamp_utc"].max()
+    return samples[samples["timestamp_utc"] >= newest - pd.Timedelta(days=RECENT_DAYS)]
+
+
+def _products_to_plan(plant: Plant, store, plan, plan_date: str):
+    """(line_id, product_id, plan entry) for the day: the plan's rows, else products run recently."""
+    if plan is not None:
+        return [(e.line_id, e.product_id, e) for e in plan if e.date.isoformat() == plan_date]
+    out = []
+    lots = store.lots()
+    for line_id, line in plant.lines.items():
+        mine = lots[lots["line_id"] == line_id] if not lots.empty else lots
+        if mine.empty:
+            continue
+        newest = pd.to_datetime(mine["last_utc"], utc=True).max()
+        recent = mine[pd.to_datetime(mine["last_utc"], utc=True) >= newest - pd.Timedelta(days=RECENT_DAYS / 2)]
+        for pid in line.products:
+            if pid in set(recent["product_id"]):
+                out.append((line_id, pid, None))
+    return out
+
+
+def run_nightly(plant: Plant, *, plan_path: str | None = None, plan_date: str | None = None, dry_run: bool = False,
+                executor=None, now: dt.datetime | None = None) -> NightlyResult:
+    """Run the whole nightly job once; see the module notes for exit codes."""
+    paths = plant_paths(plant)
+    _configure_log_file(paths["log"])
+    try:
+        with exclusive_lock(paths["lock"]):
+            return _run_locked(plant, plan_path, plan_date, dry_run, executor or SerialExecutor(), now)
+    except LockHeld as exc:
+        log.warning("%s", exc)
+        return NightlyResult(EXIT_LOCKED, "locked", {"error": str(exc)}, [str(exc)])
+
+
+def _configure_log_file(path: Path):
+    root = logging.getLogger("optimizer")
+    if any(isinstance(h, logging.FileHandler) and Path(h.baseFilename) == path for h in root.handlers):
+        return
+    try:
+        path.parent.mkdir(parents=True, exist_ok=True)
+        handler = logging.FileHandler(path)
+    except OSError as exc:
+        log.warning("cannot write the log file %s: %s", path, exc)
+        return
+    handler.setFormatter(logging.Formatter("%(asctime)s %(levelname)s %(name)s: %(message)s"))
+    root.addHandler(handler)
+    if root.level == logging.NOTSET or root.level > logging.INFO:
+        root.setLevel(logging.INFO)
+
+
+def _run_locked(plant, plan_path, plan_date, dry_run, executor, now) -> NightlyResult:
+    from .ingest import find_log_files, ingest_paths
+    from .recommend import export_recommendations, read_plan, recent_practice_from_samples
+    from .store import Store
+    from .train import load_active_model, record_fits, train_inputs
+
+    t_start = time.perf_counter()
+    now = now or dt.datetime.now(dt.timezone.utc)
+    plan_date = plan_date or now.date().isoformat()
+    plan = read_plan(plan_path, plant) if plan_path else None
+    if dry_run:
+        return _dry_run(plant, plan, plan_date, find_log_files)
+    try:
+        store = Store.open(plant.store_url)
+    except StoreError as exc:
+        msg = f"cannot open the store for writing: {exc}; nothing was changed"
+        log.error(msg)
+        return NightlyResult(EXIT_FAILED, "failed", {"error": msg}, [msg])
+    summary = {"plan_date": plan_date, "steps": {}, "warnings": [], "errors": [], "executor": executor.name}
+    alerts: list[dict] = []
+    run_id = None
+    try:
+        stale = store.job_runs(kind="nightly")
+        for r in stale[stale["status"] == "running"].itertuples() if not stale.empty else []:
+            store.finish_job_run(int(r.id), "failed", {"error": "interrupted (the process ended before finishing)"})
+            summary["warnings"].append(f"run {r.id} had been interrupted; marked failed")
+        run_id = store.start_job_run("nightly")
+        # 1. ingest
+        t0 = time.perf_counter()
+        reports = ingest_paths(plant, store, plant.incoming_dirs)
+        new_rows = {}
+        for rep in reports:
+            if rep.status == "rejected":
+                summary["warnings"].append(f"{rep.path}: {rep.error}")
+            elif rep.quarantined_total:
+                summary["warnings"].append(f"{Path(rep.path).name}: {rep.quarantined_total} row(s) set aside "
+                                           f"({', '.join(f'{k} {v}' for k, v in rep.quarantined.items())})")
+            if rep.status == "ingested" and rep.kind == "process":
+                for lid in rep.line_ids:
+                    new_rows[lid] = new_rows.get(lid, 0) + rep.accepted
+        summary["steps"]["ingest"] = {"files": len(reports), "ingested": sum(r.status == "ingested" for r in reports),
+                                      "skipped": sum(r.status == "already_ingested" for r in reports),
+                                      "rejected": sum(r.status == "rejected" for r in reports),
+                                      "rows_accepted": sum(r.accepted for r in reports), "seconds": time.perf_counter() - t0}
+        have = set(store.lines_with_samples())
+        for lid in plant.lines:
+            if lid in have and not new_rows.get(lid):
+                alerts.append({"kind": "no_new_data", "line_id": lid,
+                               "message": f"line {lid}: no new data in this run; check the historian export"})
+        # 2. fit and gate, lines with new data only (idempotent)
+        t0 = time.perf_counter()
+        fit_lines = [lid for lid in plant.lines if new_rows.get(lid) and lid in have]
+        inputs = {lid: train_inputs(plant, store, lid, list(plant.line(lid).products)) for lid in fit_lines}
+        results = executor.map(_safe(_fit_task), [plant] * len(fit_lines), fit_lines,
+                               [list(plant.line(l).products) for l in fit_lines], [inputs[l][0] for l in fit_lines],
+                               [inputs[l][1] for l in fit_lines], [inputs[l][2] for l in fit_lines])
+        decisions = []
+        for lid, res in zip(fit_lines, results):
+            if isinstance(res, _Failure):
+                summary["errors"].append(f"fit of line {lid} failed: {res.error}; its active models stay")
+                continue
+            d, a = record_fits(plant, store, res, inputs[lid][2])
+            decisions += d
+            alerts += a
+        summary["steps"]["fit"] = {"lines": fit_lines, "decisions": [d.to_json() for d in decisions],
+                                   "seconds": time.perf_counter() - t0}
+        # 3. recommend for the day's plan
+        t0 = time.perf_counter()
+        groups = _products_to_plan(plant, store, plan, plan_date)
+        existing = store.recommendations(date=plan_date)
+        todo, fitted, recent = [], [], []
+        for lid, pid, entry in groups:
+            model = load_active_model(plant, store, lid, pid)
+            same = existing[(existing["line_id"] == lid) & (existing["product_id"] == pid)] if not existing.empty else existing
+            if not same.empty and (same["model_version_id"].iloc[-1] == model.version_id or
+                                   (pd.isna(same["model_version_id"].iloc[-1]) and model.version_id is None)):
+                continue  # already recommended today with this model: nothing changes
+            samples = recent_samples(store, lid, pid)
+            todo.append((lid, pid, entry))
+            fitted.append(model)
+            recent.append(recent_practice_from_samples(samples, plant.line(lid), plant.product(pid))
+                          if len(samples) else None)
+        results = executor.map(_safe(recommend_task), [plant] * len(todo), [g[0] for g in todo],
+                               [g[1] for g in todo], fitted, recent, [g[2] for g in todo], [plan_date] * len(todo))
+        records = []
+        for (lid, pid, _), model, res in zip(todo, fitted, results):
+            if isinstance(res, _Failure):
+                summary["errors"].append(f"recommendation for {lid} × {pid} failed: {res.error}; yesterday's stays")
+                continue
+            records.append({"line_id": lid, "product_id": pid, "payload": res, "model_version_id": model.version_id})
+            if not res.get("feasible"):
+                info = res.get("infeasible") or {}
+                alerts.append({"kind": "infeasible", "line_id": lid, "product_id": pid,
+                               "message": f"{lid} × {pid}: no setting meets every target "
+                                          f"({info.get('message', 'see the recommendation')})"})
+        if records:
+            store.add_recommendations(records, run_id=run_id, plan_date=plan_date)
+        day = store.recommendations(date=plan_date)
+        exported = None
+        if not day.empty:
+            latest = day.sort_values("id").groupby(["line_id", "product_id"]).tail(1)
+            exported = [str(p) for p in export_recommendations(list(latest["payload"]), plant.export_dir, plan_date)]
+        by_line = {}
+        for r in records:
+            by_line[r["line_id"]] = by_line.get(r["line_id"], 0) + 1
+        summary["steps"]["recommend"] = {"groups": len(groups), "new": len(records), "exported": exported,
+                                         "by_line": by_line,
+                                         "seconds": time.perf_counter() - t0}
+        # 4. alerts
+        if alerts:
+            store.add_alerts(alerts, run_id=run_id)
+            _hook(plant, alerts, summary)
+        summary["alerts"] = alerts
+        summary["seconds"] = time.perf_counter() - t_start
+        status = "failed" if summary["errors"] else ("warning" if summary["warnings"] or alerts else "ok")
+        store.finish_job_run(run_id, status, summary)
+        return NightlyResult({"ok": EXIT_OK, "warning": EXIT_WARNINGS, "failed": EXIT_FAILED}[status], status,
+                             summary, _line_summaries(plant, summary, alerts))
+    except Exception as exc:  # the run's own failure: record it, keep everything stored before
+        log.exception("nightly run failed")
+        summary["errors"].append(f"the run stopped: {exc}")
+        if run_id is not None:
+            try:
+                store.finish_job_run(run_id, "failed", summary)
+            except Exception:  # noqa: BLE001 - the store itself may be what failed
+                log.exception("could not record the failed run")
+        return NightlyResult(EXIT_FAILED, "failed", summary, [f"nightly run failed: {exc}"])
+    finally:
+        store.close()
+
+
+def _line_summaries(plant, summary, alerts) -> list[str]:
+    fitted = {}
+    for d in summary["steps"].get("fit", {}).get("decisions", []):
+        fitted.setdefault(d["line_id"], []).append(d)
+    new_recs = summary["steps"].get("recommend", {}).get("by_line", {})
+    out = []
+    for lid in plant.lines:
+        ds = fitted.get(lid, [])
+        n_fit = sum(d["status"] == "fitted" for d in ds)
+        promoted = sum(d["promoted"] for d in ds)
+        cold = sum(d["status"] == "cold_start" for d in ds)
+        n_alerts = sum(a.get("line_id") == lid for a in alerts)
+        out.append(f"{lid}: {n_fit} model(s) fitted, {promoted} promoted, {cold} on cold start; "
+                   f"{new_recs.get(lid, 0)} new recommendation(s); {n_alerts} alert(s)")
+    return out
+
+
+def _hook(plant: Plant, alerts: list[dict], summary: dict):
+    command = plant.sections.get("alerts", {}).get("hook_command")
+    if not command:
+        return
+    try:
+        subprocess.run(shlex.split(command), input=json.dumps(alerts), text=True, timeout=60, check=True,
+                       capture_output=True)
+    except (OSError, subprocess.SubprocessError) as exc:
+        summary["warnings"].append(f"the alert hook '{command}' failed: {exc}")
+
+
+def _dry_run(plant, plan, plan_date, find_log_files) -> NightlyResult:
+    files, missing = find_log_files(plant.incoming_dirs)
+    lines = [f"would read {len(files)} file(s) from {', '.join(map(str, plant.incoming_dirs)) or 'no incoming folder'}"
+             " (files already ingested are skipped by content hash)"]
+    lines += [f"missing incoming folder: {m}" for m in missing]
+    lines.append(f"would refit the lines with new data, gate, and recommend for {plan_date} "
+                 + (f"from the plan ({len(plan)} rows)" if plan else "for the products run recently"))
+    lines.append(f"would export to {plant.export_dir}; store {plant.store_url}")
+    return NightlyResult(EXIT_OK, "dry-run", {"files": [str(f) for f in files]}, lines)
