@@ -163,6 +163,7 @@ def margins_figure(df: pd.DataFrame) -> go.Figure:
                          orientation="h", marker_color=colours, name="margin",
                          text=[f"{m:+.2f}" for m in df["margin"]], textposition="outside"))
     fig.add_vline(x=0, line=dict(color="#444444"))
+    fig.update_yaxes(automargin=True)
     return fig
 
 

@@ -91,7 +91,7 @@ def profile_figure(ctx, record, line, product):
 
 def register(app, ctx):
     @app.callback(Output("wi-product", "options"), Output("wi-product", "value"), Input("wi-line", "value"),
-                  State("wi-product", "value"))
+                  State("wi-product", "value"), prevent_initial_call=True)
     def _products(line_id, product_id):
         products = list(ctx.plant.line(line_id).products)
         return products, product_id if product_id in products else products[0]
