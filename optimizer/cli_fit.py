@@ -23,7 +23,8 @@ def _print_decision(d) -> None:
     for r in pf.parameters:
         label = r["name"]
         ci = "" if r["low95"] is None else f"{r['low95']:.4g} … {r['high95']:.4g}"
-        print(f"  {label:<34} {r['value']:>11.4g} {ci:>25}  {r['unit']}")
+        boot = f"   (bootstrap σ {r['bootstrap_stderr']:.3g})" if r.get("bootstrap_stderr") else ""
+        print(f"  {label:<34} {r['value']:>11.4g} {ci:>25}  {r['unit']}{boot}")
     if pf.scores:
         print(f"  held-out MAE [K or % points]   {'model':>8} {'defaults':>9} {'linear':>8} {'active':>8}")
         for ch, s in pf.scores.get("model", {}).items():
@@ -43,7 +44,8 @@ def cmd_fit(args) -> int:
     plant, _ = load_plant(args.config)
     store = Store.open(plant.store_url)
     try:
-        decisions, alerts, reports = train(plant, store, args.line, args.product)
+        options = {"bootstrap": args.bootstrap} if args.bootstrap else None
+        decisions, alerts, reports = train(plant, store, args.line, args.product, options=options)
     finally:
         store.close()
     if args.json:
@@ -88,6 +90,8 @@ def add_fit_parsers(sub) -> None:
     fit.add_argument("--config", required=True, help="plant description (TOML)")
     fit.add_argument("--line", help="only this line")
     fit.add_argument("--product", help="only this product")
+    fit.add_argument("--bootstrap", type=int, default=0, metavar="N",
+                     help="also estimate standard errors from N refits on lots drawn with replacement")
     fit.add_argument("--json", action="store_true", help="print one JSON object")
     fit.set_defaults(func=cmd_fit)
     models = sub.add_parser("models", help="list model versions, or activate one (engineer override)")

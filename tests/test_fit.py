@@ -109,3 +109,17 @@ def test_sample_plant_tempering_line_meets_the_fit_targets():
         assert s["array_min"].mae <= 1.0 and s["array_max"].mae <= 1.0, (pid, s)
         assert s["array_mean"].mae < pf.scores["defaults"]["array_mean"].mae
     assert report.electric["values"]["mains_to_rf_efficiency"] == pytest.approx(0.78, abs=0.05)  # nameplate 0.78
+
+
+def test_bootstrap_over_lots_gives_standard_errors_of_the_same_order_as_the_jacobian():
+    # Two estimates of the same uncertainty: refits on resampled lots against the Jacobian at the
+    # optimum. With only 6 training lots a cluster bootstrap runs low (it cannot see more lot-to-lot
+    # variety than the 6 lots hold) and 12 rounds leave its own σ uncertain by about ±20 %, so
+    # agreement is asked within a factor of 4 (regression-style bound, not a published value).
+    df, qa, _ = synthetic_line_logs(LINE, HAKE, TRUE, rng=np.random.default_rng(8))
+    pf = fit_line(PLANT, "TMP-2", df, qa, products=["HAKE-FLT-BLK"],
+                  options={"bootstrap": 12}).products["HAKE-FLT-BLK"]
+    rows = {r["name"]: r for r in pf.parameters if "bootstrap_stderr" in r}
+    for name in ("loss_factor_scale", "field_nonuniformity"):
+        ratio = rows[name]["bootstrap_stderr"] / rows[name]["stderr"]
+        assert 0.25 < ratio < 4.0, (name, ratio)

@@ -66,6 +66,12 @@ class Observations:
                             {k: v[idx] for k, v in self.readings.items()}, self.lot_index[idx],
                             self.time_s[idx], self.lots)
 
+    def take_rows(self, idx) -> "Observations":
+        """Observations at these indices (repeats allowed, e.g. for a bootstrap)."""
+        idx = np.asarray(idx)
+        return Observations(self.product_id, self.passages.take(idx), {k: v[idx] for k, v in self.readings.items()},
+                            self.lot_index[idx], self.time_s[idx], self.lots)
+
     def count(self, channel: str) -> int:
         return int(np.isfinite(self.readings[channel]).sum())
 

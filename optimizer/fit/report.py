@@ -139,6 +139,37 @@ def _split_lots(obs: Observations, fraction: float) -> tuple[np.ndarray, list[st
     return mask, names([k for k in order if k not in held]), names(sorted(held))
 
 
+def bootstrap_over_lots(problem, result, train: dict, start: dict, rounds: int, rng) -> list[float | None]:
+    """Standard errors from refits on lots drawn with replacement (each product's lots resampled).
+
+    Each refit starts at the fit's optimum (few evaluations) and keeps its noise estimates;
+    lots, not samples, are resampled because samples within a lot are not independent.
+    """
+    from .thermal import LineProblem
+
+    draws = []
+    names = [(u.name, u.product_id) for u in problem.unknowns]
+    for _ in range(rounds):
+        resampled = {}
+        for pid, obs in train.items():
+            lots = np.unique(obs.lot_index)
+            pick = rng.choice(lots, size=lots.size, replace=True)
+            parts = [np.flatnonzero(obs.lot_index == k) for k in pick]
+            resampled[pid] = obs.take_rows(np.concatenate(parts))
+        begin = {pid: start[pid].with_values(**{n: float(v) for (n, owner), v in zip(names, result.values)
+                                                if owner in (None, pid) and n in start[pid].values})
+                 for pid in resampled}
+        again = LineProblem(problem.line, problem.products, resampled, begin,
+                            {pid: m.reflection for pid, m in problem.models.items()},
+                            fit_array_offset="outfeed_array_offset_k" in dict(names),
+                            fit_moisture_offset="moisture_meter_offset_pct" in dict(names))
+        again.sigma = dict(result.sigma)
+        refit = solve(again, max_nfev=25, reweight=False)
+        draws.append([refit.value(n, owner) for n, owner in names])
+    d = np.asarray(draws)
+    return [float(x) for x in d.std(axis=0, ddof=1)] if rounds > 1 else [None] * len(names)
+
+
 def _parameter_table(unknowns, values, cov, corr_limit) -> tuple[list[dict], dict, list[tuple[set, str]]]:
     """Parameter rows with 95 % intervals, correlations, and warnings tagged with the products they concern."""
     se = np.sqrt(np.clip(np.diag(cov), 0, None)) if cov is not None else np.full(len(values), np.nan)
@@ -265,6 +296,11 @@ def fit_line(plant: Plant, line_id: str, samples: pd.DataFrame, qa: pd.DataFrame
         result = solve(problem, max_nfev=opt["max_evaluations"])
         rows, corr, warnings = _parameter_table(problem.unknowns, result.values, result.covariance,
                                                 opt["correlation_warning"])
+        if int(opt.get("bootstrap", 0)) > 0:
+            boot = bootstrap_over_lots(problem, result, train, start, int(opt["bootstrap"]),
+                                       np.random.default_rng(int(opt.get("bootstrap_seed", 0))))
+            for row, se in zip(rows, boot):
+                row["bootstrap_stderr"] = se
         if result.at_bound:
             warnings.append(({None}, "at a bound (the data push it beyond its physical range; check the data or "
                                      "the description): " + ", ".join(result.at_bound)))

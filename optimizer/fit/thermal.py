@@ -82,14 +82,14 @@ class LineProblem:
         specs = {s.name: s for s in start[any_pid].specs}
         for name in free_line:
             s = specs[name]
-            scale = SCALES[name] or max(abs(start[any_pid][name]), 1.0)
+            scale = SCALES[name] or max(abs(specs[name].default), 1.0)
             self.unknowns.append(Unknown(name, None, start[any_pid][name], s.low, s.high, scale, s.unit, s.meaning,
                                          s.identified_by))
         for pid in observations:
             pspecs = {s.name: s for s in start[pid].specs}
             for name in PRODUCT_THERMAL[line.kind]:
                 s = pspecs[name]
-                scale = SCALES[name] or abs(start[pid][name]) * 0.5
+                scale = SCALES[name] or abs(pspecs[name].default) * 0.5
                 self.unknowns.append(Unknown(name, pid, start[pid][name], s.low, s.high, scale, s.unit, s.meaning,
                                              s.identified_by))
         for name, flag in (("outfeed_array_offset_k", fit_array_offset), ("moisture_meter_offset_pct", fit_moisture_offset)):
