@@ -1,7 +1,7 @@
 """Layout builders shared by the pages: the shell, the caution, tables and small blocks."""
 from __future__ import annotations
 
-from dash import dcc, html
+from dash import Input, Output, State, dcc, html
 
 CAUTION = ("Advisory settings from a fitted model. Verify the first lot with a probe (core and edges). "
            "Microwave and RF installations, exposure limits and food safety follow local codes and "
@@ -59,3 +59,12 @@ def selector(id_prefix: str, plant, line_id: str | None, product_id: str | None)
         html.Label(["Product", dcc.Dropdown(id=f"{id_prefix}-product", options=list(products), value=product_id,
                                             clearable=False)]),
     ]), line_id, product_id
+
+
+def register_selector(app, ctx, id_prefix: str):
+    """The product dropdown follows the line dropdown (keeping the product when the line runs it)."""
+    @app.callback(Output(f"{id_prefix}-product", "options"), Output(f"{id_prefix}-product", "value"),
+                  Input(f"{id_prefix}-line", "value"), State(f"{id_prefix}-product", "value"), prevent_initial_call=True)
+    def _products(line_id, product_id):
+        products = list(ctx.plant.line(line_id).products)
+        return products, product_id if product_id in products else products[0]

@@ -2,7 +2,6 @@
 from __future__ import annotations
 
 import json
-import sys
 
 from .config import load_plant
 from .errors import DataError

@@ -2,10 +2,10 @@
 from __future__ import annotations
 
 import pandas as pd
-from dash import Input, Output, State, dcc, html
+from dash import Input, Output, dcc, html
 
 from .. import figures
-from ..layout import notice, selector, table
+from ..layout import notice, register_selector, selector, table
 
 PATH = "/model"
 UNITS = {"array_mean": "°C", "array_min": "°C", "array_max": "°C", "moisture": "% wb"}
@@ -68,11 +68,7 @@ def layout(ctx, line=None, product=None, **_):
 
 
 def register(app, ctx):
-    @app.callback(Output("model-product", "options"), Output("model-product", "value"), Input("model-line", "value"),
-                  State("model-product", "value"), prevent_initial_call=True)
-    def _products(line_id, product_id):
-        products = list(ctx.plant.line(line_id).products)
-        return products, product_id if product_id in products else products[0]
+    register_selector(app, ctx, "model")
 
     @app.callback(Output("model-content", "children"), Input("model-product", "value"), Input("model-line", "value"),
                   prevent_initial_call=True)

@@ -8,7 +8,7 @@ from dash import Input, Output, State, dcc, html
 from optimizer.errors import BeltwaveError
 
 from .. import figures
-from ..layout import notice, selector, table
+from ..layout import notice, register_selector, selector, table
 from . import whatif
 
 PATH = "/recommendation"
@@ -81,11 +81,7 @@ def layout(ctx, line=None, product=None, **_):
 
 
 def register(app, ctx):
-    @app.callback(Output("rec-product", "options"), Output("rec-product", "value"), Input("rec-line", "value"),
-                  State("rec-product", "value"), prevent_initial_call=True)
-    def _products(line_id, product_id):
-        products = list(ctx.plant.line(line_id).products)
-        return products, product_id if product_id in products else products[0]
+    register_selector(app, ctx, "rec")
 
     @app.callback(Output("rec-content", "children"), Input("rec-product", "value"), State("rec-line", "value"),
                   prevent_initial_call=True)

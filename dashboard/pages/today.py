@@ -4,7 +4,7 @@ from __future__ import annotations
 import pandas as pd
 from dash import dcc, html
 
-from ..layout import notice, table
+from ..layout import notice
 
 PATH = "/"
 

@@ -9,7 +9,7 @@ from optimizer.simulate import check_settings, outcome_record
 from optimizer.errors import BeltwaveError
 
 from .. import figures
-from ..layout import notice, selector, table
+from ..layout import notice, register_selector, selector, table
 
 PATH = "/what-if"
 
@@ -90,11 +90,7 @@ def profile_figure(ctx, record, line, product):
 
 
 def register(app, ctx):
-    @app.callback(Output("wi-product", "options"), Output("wi-product", "value"), Input("wi-line", "value"),
-                  State("wi-product", "value"), prevent_initial_call=True)
-    def _products(line_id, product_id):
-        products = list(ctx.plant.line(line_id).products)
-        return products, product_id if product_id in products else products[0]
+    register_selector(app, ctx, "wi")
 
     @app.callback(Output("wi-controls", "children"), Output("wi-model", "children"),
                   Input("wi-product", "value"), State("wi-line", "value"), prevent_initial_call=True)

@@ -14,7 +14,7 @@ from dataclasses import dataclass, field
 import numpy as np
 import pandas as pd
 
-from ..config import Line, Plant, Product
+from ..config import Line, Plant
 from ..errors import DataError
 from ..line import LineModel, ModelParameters
 from ..models import FittedModel
