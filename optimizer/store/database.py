@@ -60,6 +60,14 @@ def ms_to_utc(values) -> pd.Series | pd.Timestamp | None:
     return pd.to_datetime(pd.Series(values, dtype="float64"), unit="ms", utc=True)
 
 
+def _equal(query, table, **values):
+    """``query`` narrowed to rows whose columns equal the given values (None: no condition)."""
+    for name, value in values.items():
+        if value is not None:
+            query = query.where(table.c[name] == value)
+    return query
+
+
 def _json(payload: Any, what: str) -> str:
     try:
         return json.dumps(payload, allow_nan=False, sort_keys=True, default=_json_default)
@@ -291,8 +299,7 @@ class Store:
     def sample_count(self, line_id: str | None = None) -> int:
         t = s.sample_blocks
         q = select(func.coalesce(func.sum(t.c.row_count), 0))
-        if line_id is not None:
-            q = q.where(t.c.line_id == line_id)
+        q = _equal(q, t, line_id=line_id)
         with self._read() as conn:
             return int(conn.execute(q).scalar_one())
 
@@ -305,10 +312,7 @@ class Store:
         """QA probe readings (position core/surface/edge/lab), sorted by line and time."""
         t = s.qa_samples
         q = select(t)
-        if line_id is not None:
-            q = q.where(t.c.line_id == line_id)
-        if product_id is not None:
-            q = q.where(t.c.product_id == product_id)
+        q = _equal(q, t, line_id=line_id, product_id=product_id)
         if lot_ids is not None:
             q = q.where(t.c.lot_id.in_(list(lot_ids)))
         if start is not None:
@@ -356,10 +360,7 @@ class Store:
         """Lots found in the samples: line_id, lot_id, product_id, first_utc, last_utc, sample_count."""
         t = s.lots
         q = select(t)
-        if line_id is not None:
-            q = q.where(t.c.line_id == line_id)
-        if product_id is not None:
-            q = q.where(t.c.product_id == product_id)
+        q = _equal(q, t, line_id=line_id, product_id=product_id)
         with self._read() as conn:
             df = _frame(conn.execute(q.order_by(t.c.line_id, t.c.first_utc_ms)), [c.name for c in t.c])
         df["first_utc"] = ms_to_utc(df.pop("first_utc_ms")).to_numpy()
@@ -406,10 +407,7 @@ class Store:
         """Steady windows: line, lot, product, settled/start/end times, samples, residence time, settings."""
         t = s.windows
         q = select(t)
-        if line_id is not None:
-            q = q.where(t.c.line_id == line_id)
-        if product_id is not None:
-            q = q.where(t.c.product_id == product_id)
+        q = _equal(q, t, line_id=line_id, product_id=product_id)
         if lot_ids is not None:
             q = q.where(t.c.lot_id.in_(list(lot_ids)))
         with self._read() as conn:
@@ -456,10 +454,7 @@ class Store:
         t = s.model_versions
         cols = [c for c in t.c if c.name != "payload_json"]
         q = select(*cols)
-        if line_id is not None:
-            q = q.where(t.c.line_id == line_id)
-        if product_id is not None:
-            q = q.where(t.c.product_id == product_id)
+        q = _equal(q, t, line_id=line_id, product_id=product_id)
         with self._read() as conn:
             df = _frame(conn.execute(q.order_by(t.c.id)), [c.name for c in cols])
             active = set(conn.execute(select(_active_versions().c.version_id)).scalars())
@@ -492,10 +487,7 @@ class Store:
     def model_activations(self, line_id: str | None = None, product_id: str | None = None) -> pd.DataFrame:
         a = s.model_activations
         q = select(a)
-        if line_id is not None:
-            q = q.where(a.c.line_id == line_id)
-        if product_id is not None:
-            q = q.where(a.c.product_id == product_id)
+        q = _equal(q, a, line_id=line_id, product_id=product_id)
         with self._read() as conn:
             return _frame(conn.execute(q.order_by(a.c.id)), [c.name for c in a.c])
 
@@ -527,12 +519,7 @@ class Store:
         q = select(t)
         if date is not None:
             q = q.where(t.c.plan_date == _plan_date(date))
-        if line_id is not None:
-            q = q.where(t.c.line_id == line_id)
-        if product_id is not None:
-            q = q.where(t.c.product_id == product_id)
-        if run_id is not None:
-            q = q.where(t.c.run_id == run_id)
+        q = _equal(q, t, line_id=line_id, product_id=product_id, run_id=run_id)
         with self._read() as conn:
             df = _frame(conn.execute(q.order_by(t.c.id)), [c.name for c in t.c])
         df["payload"] = df.pop("payload_json").map(json.loads)
@@ -559,8 +546,7 @@ class Store:
         """Job runs, newest first, with their summaries as dicts."""
         t = s.job_runs
         q = select(t)
-        if kind is not None:
-            q = q.where(t.c.kind == kind)
+        q = _equal(q, t, kind=kind)
         q = q.order_by(t.c.id.desc())
         if limit is not None:
             q = q.limit(limit)
@@ -591,10 +577,7 @@ class Store:
         q = select(t)
         if since is not None:
             q = q.where(t.c.created_utc >= _aware(since))
-        if line_id is not None:
-            q = q.where(t.c.line_id == line_id)
-        if run_id is not None:
-            q = q.where(t.c.run_id == run_id)
+        q = _equal(q, t, line_id=line_id, run_id=run_id)
         with self._read() as conn:
             df = _frame(conn.execute(q.order_by(t.c.id)), [c.name for c in t.c])
         df["payload"] = df.pop("payload_json").map(json.loads)
