@@ -32,6 +32,9 @@ class FittedModel:
     sensor_offsets: dict[str, float] = field(default_factory=dict)  # reading − truth, per sensor
     status: str = "cold_start"  # cold_start | fitted
     version_id: int | None = None
+    #: Noise per observation channel the fit estimated from its residuals (robust σ, the
+    #: channel's unit); the next fit starts its weighting there.
+    noise_sigma: dict[str, float] = field(default_factory=dict)
 
     @classmethod
     def cold_start(cls, line: Line, product: Product) -> "FittedModel":
@@ -87,6 +90,7 @@ class FittedModel:
             "reflection": {"base_fraction": self.reflection.base_fraction,
                            "light_load_kg": self.reflection.light_load_kg},
             "sensor_offsets": {k: _round(v) for k, v in self.sensor_offsets.items()}, "status": self.status,
+            "noise_sigma": {k: _round(v) for k, v in self.noise_sigma.items()},
         }
 
     @classmethod
@@ -97,7 +101,7 @@ class FittedModel:
             free=tuple(data.get("free", ())), covariance=None if cov is None else np.asarray(cov, float),
             reflection=ReflectionRelation(**data.get("reflection", {})),
             sensor_offsets=dict(data.get("sensor_offsets", {})), status=data.get("status", "fitted"),
-            version_id=version_id)
+            version_id=version_id, noise_sigma=dict(data.get("noise_sigma", {})))
 
 
 def _round(x: float) -> float:

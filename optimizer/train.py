@@ -11,11 +11,12 @@ import logging
 from dataclasses import dataclass
 
 import numpy as np
+import pandas as pd
 
 from .config import Plant
 from .errors import DataError
 from .fit import fit_line
-from .fit.report import ProductFit
+from .fit.report import ProductFit, fit_options
 from .models import FittedModel
 
 log = logging.getLogger(__name__)
@@ -110,8 +111,12 @@ def record_fits(plant: Plant, store, report, incumbents: dict) -> tuple[list[Dec
 
 
 def train_inputs(plant: Plant, store, line_id: str, products: list[str]):
-    """What a line's fit needs from the store: samples, QA readings, the active models."""
-    return (store.samples(line_id), store.qa_samples(line_id),
+    """What a line's fit needs from the store: samples and QA readings of the last
+    ``fit.history_days`` before the line's newest sample, and the active models."""
+    days = float(fit_options(plant)["history_days"])
+    newest = store.newest_sample_utc(line_id)
+    start = None if newest is None or not np.isfinite(days) or days <= 0 else newest - pd.Timedelta(days=days)
+    return (store.samples(line_id, start=start), store.qa_samples(line_id, start=start),
             {pid: load_active_model(plant, store, line_id, pid) for pid in products})
 
 

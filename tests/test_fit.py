@@ -1,6 +1,7 @@
 """The fit: recovers known parameters, validates on the newest lots, says what it cannot identify."""
 from __future__ import annotations
 
+import dataclasses
 import glob
 from pathlib import Path
 
@@ -123,3 +124,71 @@ def test_bootstrap_over_lots_gives_standard_errors_of_the_same_order_as_the_jaco
     for name in ("loss_factor_scale", "field_nonuniformity"):
         ratio = rows[name]["bootstrap_stderr"] / rows[name]["stderr"]
         assert 0.25 < ratio < 4.0, (name, ratio)
+
+
+def test_a_warm_start_from_the_active_model_reaches_the_same_fit_in_fewer_evaluations():
+    # The nightly refit begins at the active model's values and noise. The priors stay at the
+    # defaults, so the optimum must be the cold fit's: every parameter within a quarter of its
+    # standard error (the optimiser stops at a cost change of COST_TOL = 0.01, i.e. Δχ² = 0.02).
+    df, qa, _ = synthetic_line_logs(LINE, HAKE, TRUE, rng=np.random.default_rng(11), array_offset_k=TRUE_OFFSET_K)
+    cold = fit_line(PLANT, "TMP-2", df, qa, products=["HAKE-FLT-BLK"])
+    pf = cold.products["HAKE-FLT-BLK"]
+    assert pf.model.noise_sigma["array_mean"] > 0  # stored for the next night
+    warm = fit_line(PLANT, "TMP-2", df, qa, products=["HAKE-FLT-BLK"], incumbents={"HAKE-FLT-BLK": pf.model})
+    assert warm.thermal["warm_start"] and not cold.thermal["warm_start"]
+    assert warm.thermal["evaluations"] < cold.thermal["evaluations"]
+    before = {r["name"]: r for r in pf.parameters if r.get("bounds") is not None}
+    for row in warm.products["HAKE-FLT-BLK"].parameters:
+        if row["name"] in before:
+            assert row["value"] == pytest.approx(before[row["name"]]["value"], abs=0.25 * before[row["name"]]["stderr"])
+    off = fit_line(PLANT, "TMP-2", df, qa, products=["HAKE-FLT-BLK"], incumbents={"HAKE-FLT-BLK": pf.model},
+                   options={"warm_start": False})
+    assert not off.thermal["warm_start"]
+
+
+def test_observations_per_lot_come_from_fixed_steps_so_one_more_lot_changes_nothing():
+    from optimizer.fit.report import PER_LOT_STEPS, observations_per_lot
+
+    assert observations_per_lot(10, 25, 600) == 25
+    assert observations_per_lot(100, 25, 600) == 5  # 6 would fit, but 6 is not a step: keep 5
+    assert observations_per_lot(1000, 25, 600) == PER_LOT_STEPS[0]  # never below the first step
+    # from 24 to 50 lots (a month of nightly additions at ~1 lot a day) the sampling holds still
+    assert {observations_per_lot(n, 25, 600) for n in range(38, 50)} == {12}
+    assert {observations_per_lot(n, 25, 600) for n in range(25, 38)} == {16}
+
+
+def test_meter_intervals_equal_a_plain_loop_over_the_intervals_with_gaps_and_a_meter_reset():
+    # Oracle: the interval arithmetic written out directly (left-rule integrals; an interval is
+    # dropped on a record gap > 0.2 of its length, a meter running backwards, too few samples).
+    df, _, _ = synthetic_line_logs(LINE, HAKE, TRUE, rng=np.random.default_rng(12))
+    rec = line_record(df, LINE)
+    rec = rec.drop(index=rec.index[200:260]).reset_index(drop=True)  # a 30-minute gap (30-s samples)
+    rec.loc[rec.index[500]:, "energy_kwh"] -= 5000.0  # a meter replaced
+    got = meter_intervals(rec, LINE)
+    t = rec["time_s"].to_numpy(float)
+    meter = rec["energy_kwh"].to_numpy(float)
+    fwd = np.nan_to_num(rec[[f"zone{i + 1}_forward_kw" for i in range(LINE.zone_count)]].to_numpy(float)).sum(1)
+    lift = np.nan_to_num(np.maximum(rec["air_temp_c"].to_numpy(float) - LINE.ambient_temp_c, 0.0))
+    bins = np.floor((t - t[0]) / 900.0).astype(int)
+    want = []
+    for b in np.unique(bins):
+        sel = np.flatnonzero(bins == b)
+        i0, i1 = sel[0], sel[-1]
+        span = t[i1] - t[i0]
+        if sel.size < 3 or span < 450.0 or meter[i1] < meter[i0] or np.diff(t[i0:i1 + 1]).max() > 180.0:
+            continue
+        dt = np.diff(t[i0:i1 + 1])
+        want.append((t[i0], np.sum(fwd[i0:i1] * dt) / span, np.sum(lift[i0:i1] * dt) / span,
+                     (meter[i1] - meter[i0]) / (span / 3600.0)))
+    assert len(got) == len(want) > 10
+    np.testing.assert_allclose(got.to_numpy(), np.array(want), rtol=1e-10, atol=1e-9)
+
+
+def test_a_misspelt_fit_option_is_an_error_that_names_it_and_the_allowed_ones():
+    from optimizer.errors import ConfigError
+    from optimizer.fit.report import fit_options
+
+    plant = dataclasses.replace(PLANT, sections={**PLANT.sections, "fit": {"histroy_days": 30}})
+    with pytest.raises(ConfigError, match=r"\[fit\]: unknown option\(s\) histroy_days; allowed: .*history_days"):
+        fit_options(plant)
+    assert fit_options(PLANT, {"history_days": 30})["history_days"] == 30

@@ -15,12 +15,12 @@ import numpy as np
 import pandas as pd
 
 from ..config import Line, Plant
-from ..errors import DataError
+from ..errors import ConfigError, DataError
 from ..line import LineModel, ModelParameters
 from ..models import FittedModel
 from .data import CHANNELS, LINE_CHANNELS, Observations, build_observations, find_lots, line_record
 from .electric import fit_electric, fit_reflection, meter_intervals
-from .thermal import LineProblem, channel_predictions, solve
+from .thermal import LINE_THERMAL, PRODUCT_THERMAL, LineProblem, channel_predictions, solve
 
 log = logging.getLogger(__name__)
 
@@ -28,11 +28,14 @@ DEFAULTS = {
     "holdout_fraction": 0.2,  # newest share of each product's lots kept for validation
     "min_lots": 3,  # fewer lots than this: the product keeps its cold-start model
     "observations_per_lot": 25,
-    "max_observations": 600,  # per product: long histories thin out per lot, keeping every lot
+    "max_observations": 600,  # per product: long histories thin out per lot (down to PER_LOT_STEPS[0])
+    "max_lots_per_product": 120,  # the thermal fit uses each product's newest lots
+    "history_days": 90.0,  # the store's samples read for a fit: this many days before the newest (0: all)
     "max_evaluations": 60,
     "drift_window_days": 7.0,
     "drift_threshold_pct": 3.0,  # generator efficiency change that raises an alert
     "correlation_warning": 0.95,
+    "warm_start": True,  # begin at the active models' values and noise (same priors, same optimum, fewer steps)
 }
 
 
@@ -238,6 +241,60 @@ def efficiency_drift(record: pd.DataFrame, line: Line, window_days: float, thres
     return points, alerts
 
 
+#: Observations taken per lot come from these steps, so that one more lot rarely changes how
+#: every other lot is sampled (which would move the optimum from one night to the next).
+PER_LOT_STEPS = (5, 8, 12, 16, 25, 40, 60)
+
+
+def observations_per_lot(n_lots: int, wanted: int, max_observations: int) -> int:
+    """The largest step ≤ ``wanted`` that keeps ``n_lots`` × step within ``max_observations``."""
+    fitting = [s for s in PER_LOT_STEPS if s <= max(wanted, PER_LOT_STEPS[0]) and s * max(n_lots, 1) <= max_observations]
+    return fitting[-1] if fitting else PER_LOT_STEPS[0]
+
+
+def fit_options(plant: Plant, options: dict | None = None) -> dict:
+    """DEFAULTS, then the plant's ``[fit]`` section, then ``options``; an unknown key is an error
+    (a misspelt option would otherwise be ignored without a word)."""
+    allowed = {*DEFAULTS, "bootstrap", "bootstrap_seed"}
+    for where, given in (("[fit]", plant.sections.get("fit", {})), ("fit options", options or {})):
+        unknown = sorted(set(given) - allowed)
+        if unknown:
+            raise ConfigError(str(plant.source), [f"{where}: unknown option(s) {', '.join(unknown)}; "
+                                                  f"allowed: {', '.join(sorted(allowed))}"])
+    return {**DEFAULTS, **plant.sections.get("fit", {}), **(options or {})}
+
+
+def warm_start(incumbents: dict | None, products: list[str]) -> tuple[dict, dict]:
+    """Starting values and channel noise from the fitted active models of the products.
+
+    Line parameters and sensor offsets are shared: every product's model carries a copy
+    (possibly from fits of different nights), so the start is their median. The priors
+    stay at the composition-based defaults; only where the optimiser begins changes.
+    """
+    fitted = [m for pid, m in (incumbents or {}).items() if pid in products and m.status == "fitted"]
+    if not fitted:
+        return {}, {}
+    initial: dict = {}
+    shared: dict[str, list[float]] = {}
+    for m in fitted:
+        for name in LINE_THERMAL:
+            if name in m.values:
+                shared.setdefault(name, []).append(float(m.values[name]))
+        for name, v in m.sensor_offsets.items():
+            shared.setdefault(name, []).append(float(v))
+        for names in PRODUCT_THERMAL.values():
+            for name in names:
+                if name in m.values:
+                    initial[(name, m.product_id)] = float(m.values[name])
+    for name, vals in shared.items():
+        initial[(name, None)] = float(np.median(vals))
+    noise: dict[str, list[float]] = {}
+    for m in fitted:
+        for ch, v in m.noise_sigma.items():
+            noise.setdefault(ch, []).append(float(v))
+    return initial, {ch: float(np.median(v)) for ch, v in noise.items()}
+
+
 def fit_line(plant: Plant, line_id: str, samples: pd.DataFrame, qa: pd.DataFrame | None = None,
              options: dict | None = None, products: list[str] | None = None,
              incumbents: dict[str, FittedModel] | None = None) -> LineFitReport:
@@ -246,7 +303,7 @@ def fit_line(plant: Plant, line_id: str, samples: pd.DataFrame, qa: pd.DataFrame
     ``incumbents`` (the active models, by product) are scored on the same held-out lots as
     the new fit (``scores["active"]``), which is what the promotion gate compares.
     """
-    opt = {**DEFAULTS, **plant.sections.get("fit", {}), **(options or {})}
+    opt = fit_options(plant, options)
     line = plant.line(line_id)
     record = line_record(samples, line)
     lots = find_lots(record)
@@ -267,9 +324,9 @@ def fit_line(plant: Plant, line_id: str, samples: pd.DataFrame, qa: pd.DataFrame
                                            if k in params.values and np.isfinite(v) and v > 0})
         start[pid] = params
         model = LineModel(line, product, params, reflection)
-        n_product_lots = sum(1 for l in lots if l.product_id == pid)
-        per_lot = max(5, min(opt["observations_per_lot"], opt["max_observations"] // max(n_product_lots, 1)))
-        obs = build_observations(record, qa, line, product, model, lots, per_lot=per_lot)
+        mine = [l for l in lots if l.product_id == pid][-int(opt["max_lots_per_product"]):]
+        per_lot = observations_per_lot(len(mine), opt["observations_per_lot"], opt["max_observations"])
+        obs = build_observations(record, qa, line, product, model, mine, per_lot=per_lot)
         n_lots = 0 if obs is None else np.unique(obs.lot_index).size
         if obs is None or n_lots < opt["min_lots"]:
             cold = FittedModel.cold_start(line, product)
@@ -288,9 +345,10 @@ def fit_line(plant: Plant, line_id: str, samples: pd.DataFrame, qa: pd.DataFrame
             names[pid] = (tr_names, ho_names)
         has_qa_temp = any(tr.count("qa_core") + tr.count("qa_surface") >= 5 for tr in train.values())
         has_lab = any(tr.count("qa_lab") >= 5 for tr in train.values())
+        initial, sigma0 = warm_start(incumbents, list(train)) if opt["warm_start"] else ({}, {})
         problem = LineProblem(line, {p: plant.product(p) for p in train}, train, start,
                               {p: reflection for p in train}, fit_array_offset=has_qa_temp,
-                              fit_moisture_offset=has_lab and line.kind == "drying")
+                              fit_moisture_offset=has_lab and line.kind == "drying", initial=initial, sigma=sigma0)
         log.info("line %s: fitting %d parameters to %d observations", line_id, len(problem.unknowns),
                  sum(len(o) for o in train.values()))
         result = solve(problem, max_nfev=opt["max_evaluations"])
@@ -308,7 +366,9 @@ def fit_line(plant: Plant, line_id: str, samples: pd.DataFrame, qa: pd.DataFrame
                    and u.name.endswith(("_offset_k", "_offset_pct"))}
         thermal_summary = {"success": result.success, "message": result.message, "evaluations": result.nfev,
                            "residuals": result.residual_count, "sigma": result.sigma,
-                           "reduced_chi2": 2 * result.cost / max(result.residual_count - len(result.values), 1)}
+                           "reduced_chi2": 2 * result.cost / max(result.residual_count - len(result.values), 1),
+                           "warm_start": bool(initial)}
+        used_channels = {ch for tr in train.values() for ch in tr.readings if tr.count(ch)}
         for pid in train:
             product = plant.product(pid)
             idx = [i for i, u in enumerate(problem.unknowns) if u.product_id in (None, pid)]
@@ -319,7 +379,8 @@ def fit_line(plant: Plant, line_id: str, samples: pd.DataFrame, qa: pd.DataFrame
                 values[problem.unknowns[i].name] = float(result.values[i])
             cov = None if result.covariance is None else result.covariance[np.ix_(keep, keep)]
             fitted = FittedModel(line_id, pid, values, tuple(free), cov, reflection or FittedModel.cold_start(line, product).reflection,
-                                 offsets, "fitted")
+                                 offsets, "fitted", noise_sigma={ch: float(v) for ch, v in result.sigma.items()
+                                                                 if ch in used_channels})
             pf = ProductFit(pid, fitted, "fitted", result.message, result.success,
                             lots_train=names[pid][0], lots_holdout=names[pid][1],
                             parameters=[r for r in rows if r["product_id"] in (None, pid)],
