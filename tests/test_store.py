@@ -116,6 +116,8 @@ def test_samples_round_trip_with_lines_of_different_zone_counts(store):
     assert store.samples("TL-1", lot_ids=["L2"])["lot_id"].tolist() == ["L2"] * 3
     assert store.samples("TL-1", product_id="other").empty
     assert store.sample_count() == 13 and store.lines_with_samples() == ["DR-1", "TL-1"]
+    assert store.newest_sample_utc("TL-1") == tl["timestamp_utc"].max()
+    assert store.newest_sample_utc("nowhere") is None
 
 
 def test_model_versions_are_appended_and_activations_kept(store):

@@ -303,6 +303,13 @@ class Store:
         with self._read() as conn:
             return int(conn.execute(q).scalar_one())
 
+    def newest_sample_utc(self, line_id: str) -> pd.Timestamp | None:
+        """Time of the line's newest stored sample (UTC), None without samples."""
+        t = s.sample_blocks
+        with self._read() as conn:
+            ms = conn.execute(select(func.max(t.c.last_utc_ms)).where(t.c.line_id == line_id)).scalar_one()
+        return None if ms is None else pd.Timestamp(int(ms), unit="ms", tz="UTC")
+
     def lines_with_samples(self) -> list[str]:
         with self._read() as conn:
             return sorted(conn.execute(select(s.sample_blocks.c.line_id).distinct()).scalars())
