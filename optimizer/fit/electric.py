@@ -48,20 +48,22 @@ def meter_intervals(record: pd.DataFrame, line: Line, interval_s: float = METER_
     if t.size < 2:
         return pd.DataFrame(columns=["start_s", "forward_kw", "lift_k", "mains_kw"])
     bins = np.floor((t - t[0]) / interval_s).astype(int)
-    rows = []
-    for b in np.unique(bins):
-        sel = np.flatnonzero(bins == b)
-        if sel.size < 3:
-            continue
-        i0, i1 = sel[0], sel[-1]
-        span = t[i1] - t[i0]
-        if span < 0.5 * interval_s or meter[i1] < meter[i0]:
-            continue
-        dt = np.diff(t[i0:i1 + 1])
-        if dt.max() > 0.2 * interval_s:  # a gap in the record: the power between is unknown
-            continue
-        rows.append((t[i0], np.sum(fwd[i0:i1] * dt) / span, np.sum(lift[i0:i1] * dt) / span,
-                     (meter[i1] - meter[i0]) / (span / 3600.0)))
+    # segments of equal bin (t is in time order): first and last index of each
+    first = np.flatnonzero(np.r_[True, bins[1:] != bins[:-1]])
+    last = np.r_[first[1:] - 1, t.size - 1]
+    dt = np.diff(t)
+    # ∫ power dt over [t_first, t_last] by the left rule, from cumulative sums
+    cum_fwd = np.r_[0.0, np.cumsum(fwd[:-1] * dt)]
+    cum_lift = np.r_[0.0, np.cumsum(lift[:-1] * dt)]
+    inner = dt.copy()
+    inner[last[last < dt.size]] = 0.0  # the step from one interval into the next is not inside either
+    longest = np.maximum.reduceat(inner, np.minimum(first, dt.size - 1)) if dt.size else np.zeros(first.size)
+    span = t[last] - t[first]
+    keep = ((last - first + 1) >= 3) & (span >= 0.5 * interval_s) & (meter[last] >= meter[first]) \
+        & (longest <= 0.2 * interval_s)  # a gap in the record: the power between is unknown
+    f, l_, sp = first[keep], last[keep], span[keep]
+    rows = np.column_stack([t[f], (cum_fwd[l_] - cum_fwd[f]) / sp, (cum_lift[l_] - cum_lift[f]) / sp,
+                            (meter[l_] - meter[f]) / (sp / 3600.0)]) if f.size else np.zeros((0, 4))
     return pd.DataFrame(rows, columns=["start_s", "forward_kw", "lift_k", "mains_kw"])
 
 
