@@ -1,11 +1,14 @@
 """The nightly run on the demo plant: 60 days of 10-s history, then one new day (target < 60 s).
 
 Reports the end-to-end seconds of the new day's run, the share of each step, and the
-speed-up of a local Dask cluster of 2 workers measured on the same new day.
+speed-up of a local Dask cluster of 2 workers (its start included) on the same new day.
+The history's QA readings arrive with the history and the new day's with the new day, as a
+plant sends them (the generator writes one QA file per line for its whole span).
 """
 from __future__ import annotations
 
 import datetime as dt
+import gzip
 import shutil
 import tempfile
 import time
@@ -28,6 +31,27 @@ def _plant(folder: Path):
     return load_plant(folder / "plant.toml")[0]
 
 
+def _split_qa_files(staging: Path, last: str) -> list[Path]:
+    """The generator writes one QA file per line for the whole span; a plant sends them daily.
+
+    Cut each into the history's rows and the new day's (local date ``last``), so that the new
+    day's run sees one day of QA readings as it would at a plant. Returns the new day's files.
+    """
+    out = []
+    for f in sorted(staging.glob("*_qa_*.csv.gz")):
+        header, *rows = gzip.decompress(f.read_bytes()).decode("utf-8").splitlines()
+        old = [r for r in rows if not r.startswith(last)]
+        new = [r for r in rows if r.startswith(last)]
+        line_id = f.name.split("_qa_")[0]
+        f.unlink()
+        (staging / f"{line_id}_qa_history.csv.gz").write_bytes(gzip.compress(("\n".join([header, *old]) + "\n").encode()))
+        if new:
+            day = staging / f"{line_id}_qa_{last}.csv.gz"
+            day.write_bytes(gzip.compress(("\n".join([header, *new]) + "\n").encode()))
+            out.append(day)
+    return out
+
+
 def run(quick: bool = False) -> list[dict]:
     days = 8 if quick else 61
     start = dt.date(2026, 8, 3)
@@ -38,7 +62,8 @@ def run(quick: bool = False) -> list[dict]:
         staging = tmp / "staging"
         plant = _plant(tmp / "a")
         generate_demo_logs(plant, staging, start=start.isoformat(), days=days, interval_s=10, seed=5)
-        new_day = [p for p in staging.iterdir() if last in p.name]
+        new_day = _split_qa_files(staging, last)
+        new_day += [p for p in staging.iterdir() if p.name.endswith(f"_{last}.csv.gz") and "_qa_" not in p.name]
         timings = {}
         for mode in ("serial", "dask"):
             folder = tmp / mode
@@ -49,9 +74,9 @@ def run(quick: bool = False) -> list[dict]:
             run_nightly(p, plan_date=last)  # the history
             for f in new_day:
                 shutil.copy(f, folder / "in" / f.name)
+            t0 = time.perf_counter()  # a local cluster's start is part of the run
             executor = DaskExecutor(workers=2) if mode == "dask" else None
             try:
-                t0 = time.perf_counter()
                 result = run_nightly(p, plan_date=(start + dt.timedelta(days=days)).isoformat(), executor=executor)
                 timings[mode] = (time.perf_counter() - t0, result)
             finally:
@@ -60,10 +85,11 @@ def run(quick: bool = False) -> list[dict]:
         serial_s, result = timings["serial"]
         rows.append({"name": f"nightly, one new day on {days - 1} d of history", "value": serial_s, "unit": "s",
                      "baseline_value": None, "ratio": None, "target": "< 60 s"})
-        for step, info in result.summary["steps"].items():
+        for step, info in result.summary["steps"].items():  # serial: the steps follow each other
             rows.append({"name": f"  share of step {step}", "value": 100 * info["seconds"] / serial_s, "unit": "%",
                          "baseline_value": None, "ratio": None, "target": ""})
-        rows.append({"name": "nightly with a local Dask cluster of 2 workers", "value": timings["dask"][0], "unit": "s",
+        rows.append({"name": "nightly, local Dask cluster of 2 (incl. its start)", "value": timings["dask"][0],
+                     "unit": "s",
                      "baseline_value": serial_s, "ratio": serial_s / timings["dask"][0],
-                     "target": "ratio = speed-up over the serial run"})
+                     "target": "< 60 s; ratio = speed-up over serial"})
     return rows

@@ -79,10 +79,26 @@ def exclusive_lock(path: Path):
         fh.close()
 
 
+class _Done:
+    """A task already run: what SerialExecutor.submit returns."""
+
+    def __init__(self, value):
+        self._value = value
+
+    def result(self):
+        return self._value
+
+
 class SerialExecutor:
-    """Runs tasks one after another in this process."""
+    """Runs tasks one after another in this process (each at once, when submitted)."""
 
     name = "serial"
+
+    def submit(self, fn, *args):
+        return _Done(fn(*args))
+
+    def as_completed(self, handles):
+        return iter(list(handles))
 
     def map(self, fn, *iterables):
         return [fn(*args) for args in zip(*iterables)]
@@ -107,8 +123,16 @@ class DaskExecutor:
             self.client = Client(self.cluster)
             self.name = f"dask local cluster of {workers or 2}"
 
-    def map(self, fn, *iterables):
+    def submit(self, fn, *args):
         # tasks come wrapped by _safe: a failing group returns a _Failure instead of raising
+        return self.client.submit(fn, *args, pure=False)
+
+    def as_completed(self, handles):
+        from dask.distributed import as_completed
+
+        return as_completed(list(handles))
+
+    def map(self, fn, *iterables):
         return self.client.gather(self.client.map(fn, *iterables, pure=False))
 
     def close(self):
@@ -166,11 +190,19 @@ def _fit_task(plant, line_id, products, samples, qa, incumbents):
 
 
 def recent_samples(store, line_id: str, product_id: str) -> pd.DataFrame:
-    """The product's samples of the last RECENT_DAYS days of the line's record."""
-    samples = store.samples(line_id, product_id)
+    """The product's samples of the RECENT_DAYS days before its newest sample on the line
+    (read from the store for that window only: a year of history is not loaded for it)."""
+    lots = store.lots(line_id, product_id)
+    if lots.empty:  # samples without lots: the line's newest sample bounds the window
+        newest = store.newest_sample_utc(line_id)
+    else:
+        newest = pd.Timestamp(pd.to_datetime(lots["last_utc"], utc=True).max())
+    if newest is None:
+        return store.samples(line_id, product_id)
+    samples = store.samples(line_id, product_id, start=newest - pd.Timedelta(days=RECENT_DAYS))
     if samples.empty:
         return samples
-    newest = samples["timestamp_utc"].max()
+    newest = samples["timestamp_utc"].max()  # the product's own newest sample
     return samples[samples["timestamp_utc"] >= newest - pd.Timedelta(days=RECENT_DAYS)]
 
 
@@ -270,41 +302,65 @@ def _run_locked(plant, plan_path, plan_date, dry_run, executor, now) -> NightlyR
             if lid in have and not new_rows.get(lid):
                 alerts.append({"kind": "no_new_data", "line_id": lid,
                                "message": f"line {lid}: no new data in this run; check the historian export"})
-        # 2. fit and gate, lines with new data only (idempotent)
+        # 2 and 3, pipelined: fit and gate the lines with new data (idempotent), and start a
+        # line's recommendations for the day's plan as soon as its models are recorded, so that
+        # a parallel executor keeps every worker busy; the serial one runs them in order
         t0 = time.perf_counter()
         fit_lines = [lid for lid in plant.lines if new_rows.get(lid) and lid in have]
-        inputs = {lid: train_inputs(plant, store, lid, list(plant.line(lid).products)) for lid in fit_lines}
-        results = executor.map(_safe(_fit_task), [plant] * len(fit_lines), fit_lines,
-                               [list(plant.line(l).products) for l in fit_lines], [inputs[l][0] for l in fit_lines],
-                               [inputs[l][1] for l in fit_lines], [inputs[l][2] for l in fit_lines])
-        decisions = []
-        for lid, res in zip(fit_lines, results):
-            if isinstance(res, _Failure):
-                summary["errors"].append(f"fit of line {lid} failed: {res.error}; its active models stay")
-                continue
-            d, a = record_fits(plant, store, res, inputs[lid][2])
-            decisions += d
-            alerts += a
-        summary["steps"]["fit"] = {"lines": fit_lines, "decisions": [d.to_json() for d in decisions],
-                                   "seconds": time.perf_counter() - t0}
-        # 3. recommend for the day's plan
-        t0 = time.perf_counter()
         groups = _products_to_plan(plant, store, plan, plan_date)
         existing = store.recommendations(date=plan_date)
-        todo, fitted, recent = [], [], []
-        for lid, pid, entry in groups:
-            model = load_active_model(plant, store, lid, pid)
-            same = existing[(existing["line_id"] == lid) & (existing["product_id"] == pid)] if not existing.empty else existing
-            if not same.empty and (same["model_version_id"].iloc[-1] == model.version_id or
-                                   (pd.isna(same["model_version_id"].iloc[-1]) and model.version_id is None)):
-                continue  # already recommended today with this model: nothing changes
-            samples = recent_samples(store, lid, pid)
-            todo.append((lid, pid, entry))
-            fitted.append(model)
-            recent.append(recent_practice_from_samples(samples, plant.line(lid), plant.product(pid))
+        incumbents, fit_jobs = {}, {}
+        for lid in fit_lines:
+            products = list(plant.line(lid).products)
+            samples, qa, incumbents[lid] = train_inputs(plant, store, lid, products)
+            fit_jobs[executor.submit(_safe(_fit_task), plant, lid, products, samples, qa, incumbents[lid])] = lid
+            del samples, qa
+        rec_jobs: dict = {}  # (line, product) -> (plan entry, model, handle)
+        t_rec = None
+
+        def submit_recommendations(lid):
+            nonlocal t_rec
+            for g_lid, pid, entry in groups:
+                if g_lid != lid:
+                    continue
+                model = load_active_model(plant, store, lid, pid)
+                same = existing[(existing["line_id"] == lid) & (existing["product_id"] == pid)] \
+                    if not existing.empty else existing
+                if not same.empty and (same["model_version_id"].iloc[-1] == model.version_id or
+                                       (pd.isna(same["model_version_id"].iloc[-1]) and model.version_id is None)):
+                    continue  # already recommended today with this model: nothing changes
+                samples = recent_samples(store, lid, pid)
+                recent = (recent_practice_from_samples(samples, plant.line(lid), plant.product(pid))
                           if len(samples) else None)
-        results = executor.map(_safe(recommend_task), [plant] * len(todo), [g[0] for g in todo],
-                               [g[1] for g in todo], fitted, recent, [g[2] for g in todo], [plan_date] * len(todo))
+                t_rec = t_rec or time.perf_counter()
+                rec_jobs[(lid, pid)] = (entry, model, executor.submit(_safe(recommend_task), plant, lid, pid, model,
+                                                                      recent, entry, plan_date))
+
+        for lid in plant.lines:
+            if lid not in fit_lines:
+                submit_recommendations(lid)
+        by_fit: dict = {}  # line -> (decisions, alerts, error), reported in the plant's line order
+        for handle in executor.as_completed(fit_jobs):
+            lid, res = fit_jobs[handle], handle.result()
+            if isinstance(res, _Failure):
+                by_fit[lid] = ([], [], f"fit of line {lid} failed: {res.error}; its active models stay")
+            else:
+                by_fit[lid] = (*record_fits(plant, store, res, incumbents[lid]), None)
+            submit_recommendations(lid)
+        decisions = []
+        for lid in fit_lines:
+            d, a, error = by_fit[lid]
+            decisions += d
+            alerts += a
+            if error:
+                summary["errors"].append(error)
+        summary["steps"]["fit"] = {"lines": fit_lines, "decisions": [d.to_json() for d in decisions],
+                                   "seconds": time.perf_counter() - t0}
+        # 3. the recommendations, gathered in the plan's order
+        t_rec = t_rec or time.perf_counter()
+        todo = [(lid, pid, rec_jobs[(lid, pid)][0]) for lid, pid, _ in groups if (lid, pid) in rec_jobs]
+        fitted = [rec_jobs[(lid, pid)][1] for lid, pid, _ in todo]
+        results = [rec_jobs[(lid, pid)][2].result() for lid, pid, _ in todo]
         records = []
         for (lid, pid, _), model, res in zip(todo, fitted, results):
             if isinstance(res, _Failure):
@@ -328,7 +384,7 @@ def _run_locked(plant, plan_path, plan_date, dry_run, executor, now) -> NightlyR
             by_line[r["line_id"]] = by_line.get(r["line_id"], 0) + 1
         summary["steps"]["recommend"] = {"groups": len(groups), "new": len(records), "exported": exported,
                                          "by_line": by_line,
-                                         "seconds": time.perf_counter() - t0}
+                                         "seconds": time.perf_counter() - t_rec}
         # 4. alerts
         if alerts:
             store.add_alerts(alerts, run_id=run_id)
