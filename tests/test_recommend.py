@@ -281,6 +281,37 @@ def test_savings_against_recent_practice_follow_the_economics():
         assert any("more than recent practice" in n for n in rec.notes)
 
 
+def test_the_throughput_floor_comes_from_the_plan_else_from_recent_practice():
+    from optimizer.recommend.core import recommend_arguments, throughput_floor
+    from optimizer.recommend.practice import RecentPractice
+
+    practice = RecentPractice(belt_speed_m_per_min=0.8, zone_forward_kw=(10.0, 10.0, 10.0), belt_load_kg_per_m=30.0)
+    # definitions: kg/h = 1000 × t / h; the practice's kg/h = 60 × m/min × kg/m = 60 × 0.8 × 30 = 1440
+    need, source, note = throughput_floor(practice, 18.0, 12.0, 1.0)
+    assert (need, source) == (1500.0, "plan") and "18 t in 12 h" in note
+    need, source, note = throughput_floor(practice, 18.0, None, 0.9)
+    assert need == pytest.approx(0.9 * 1440.0) and source == "recent practice" and "1440 kg/h" in note
+    assert throughput_floor(practice, None, None, 0.0) == (None, None, None)
+    assert throughput_floor(None, None, None, 1.0) == (None, None, None)
+    assert recommend_arguments({})["throughput_floor_share"] == 1.0  # on by default for the job and the CLI
+
+
+def test_a_recommendation_with_recent_practice_keeps_at_least_its_throughput():
+    line, product = PLANT.line("TMP-2"), PLANT.product("HAKE-FLT-BLK")
+    log = _log()
+    practice = recent_practice_from_samples(log, line, product)
+    floor = 60.0 * practice.belt_speed_m_per_min * practice.belt_load_kg_per_m
+    rec = recommend(line, product, load_model(PLANT, "TMP-2", "HAKE-FLT-BLK"), recent_practice=log,
+                    throughput_floor_share=1.0, samples=96, rng=np.random.default_rng(8))
+    assert rec.inputs["min_throughput_kg_per_h"] == pytest.approx(floor)
+    assert rec.inputs["min_throughput_source"] == "recent practice"
+    assert rec.notes[0].startswith(f"Required throughput {floor:.0f} kg/h")
+    if rec.feasible:  # the setting carries the floor at the nominal belt load
+        assert rec.throughput_kg_per_h >= floor * (1 - 1e-6)
+    else:  # or the record names the constraint that cannot be met, and why
+        assert rec.infeasible["constraint"] and rec.infeasible["message"]
+
+
 # ----------------------------------------------------------------------------- the daily plan and exports
 
 def test_read_plan_reads_tonnes_hours_and_expected_conditions(tmp_path):

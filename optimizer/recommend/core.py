@@ -46,7 +46,12 @@ OPTION_RANGES = {
     "confidence": CONFIDENCE_RANGE,
     "infeed_temp_sd_c": (0.0, 20.0),
     "belt_load_relative_sd": (0.0, 0.5),
+    "throughput_floor_share": (0.0, 2.0),
 }
+#: Without a required throughput (argument, or a plan row with tonnes and hours), the setting
+#: must carry at least this share of the recent practice's throughput: a cheaper setting that
+#: slows the line down is a different decision, the planner's, not the optimiser's. 0 turns it off.
+DEFAULT_THROUGHPUT_FLOOR_SHARE = 1.0
 
 
 def load_model(plant: Plant, line_id: str, product_id: str) -> FittedModel:
@@ -73,8 +78,32 @@ def load_model(plant: Plant, line_id: str, product_id: str) -> FittedModel:
 def recommend_arguments(options: dict) -> dict:
     """The ``[recommend]`` options (from :func:`recommend_options`) as arguments of :func:`recommend`."""
     names = {"samples": "samples", "confidence": "confidence", "objective": "objective",
-             "infeed_temp_sd_c": "default_infeed_temp_sd_c", "belt_load_relative_sd": "belt_load_relative_sd"}
-    return {names[k]: v for k, v in options.items() if k in names}
+             "infeed_temp_sd_c": "default_infeed_temp_sd_c", "belt_load_relative_sd": "belt_load_relative_sd",
+             "throughput_floor_share": "throughput_floor_share"}
+    out = {names[k]: v for k, v in options.items() if k in names}
+    out.setdefault("throughput_floor_share", DEFAULT_THROUGHPUT_FLOOR_SHARE)
+    return out
+
+
+def throughput_floor(practice: RecentPractice | None, planned_tonnes_per_day: float | None,
+                     planned_hours_per_day: float | None, share: float | None):
+    """(throughput [kg h⁻¹], its source, a note) a recommendation must carry when none is required
+    explicitly; (None, None, None) when there is nothing to go by.
+
+    The plan's tonnes over its hours when both are given; else ``share`` × the recent
+    practice's throughput (belt speed × belt load); else none.
+    """
+    if planned_tonnes_per_day and planned_hours_per_day:
+        need = 1000.0 * planned_tonnes_per_day / planned_hours_per_day
+        return need, "plan", (f"Required throughput {need:.0f} kg/h: the plan's "
+                              f"{planned_tonnes_per_day:g} t in {planned_hours_per_day:g} h.")
+    if share and practice is not None and practice.belt_load_kg_per_m and practice.belt_speed_m_per_min:
+        recent = 60.0 * practice.belt_speed_m_per_min * practice.belt_load_kg_per_m
+        need = share * recent
+        return need, "recent practice", (
+            f"Required throughput {need:.0f} kg/h: {share:.0%} of the recent practice's {recent:.0f} kg/h "
+            "(recommend.throughput_floor_share; a plan row with tonnes and hours sets it instead).")
+    return None, None, None
 
 
 def recommend_options(plant: Plant) -> dict:
@@ -151,6 +180,7 @@ def recommend(line: Line, product: Product, fitted: FittedModel, *, conditions=N
               samples: int = DEFAULT_SAMPLES,
               belt_load_relative_sd: float = DEFAULT_BELT_LOAD_RELATIVE_SD,
               default_infeed_temp_sd_c: float = DEFAULT_INFEED_TEMP_SD_C,
+              throughput_floor_share: float | None = None,
               rng: np.random.Generator) -> Recommendation:
     """Belt speed and forward power per zone that meet every target with probability ≥ ``confidence``.
 
@@ -170,7 +200,8 @@ def recommend(line: Line, product: Product, fitted: FittedModel, *, conditions=N
         the recent lots (≥ 3 lots), else ``default_infeed_temp_sd_c`` and
         ``belt_load_relative_sd`` × belt load.
     min_throughput_kg_per_h : float, optional
-        Required throughput [kg h⁻¹] at the nominal belt load.
+        Required throughput [kg h⁻¹] at the nominal belt load. When not given, see
+        ``throughput_floor_share``.
     objective : {'energy', 'throughput'}
         Least specific electric energy [kWh t⁻¹], or most throughput (ties: least energy).
     confidence : float
@@ -185,6 +216,10 @@ def recommend(line: Line, product: Product, fitted: FittedModel, *, conditions=N
         recommended throughput; default the recent practice's volume.
     samples : int
         Common samples of parameters and conditions [50…5000].
+    throughput_floor_share : float, optional
+        Without ``min_throughput_kg_per_h``: require the plan's tonnes over hours when both
+        are given, else this share of the recent practice's throughput (:func:`throughput_floor`).
+        None or 0: no floor from practice (the objective alone decides the belt speed).
     rng : numpy.random.Generator
         Source of every random number (samples, screen, local search, check).
 
@@ -210,12 +245,20 @@ def recommend(line: Line, product: Product, fitted: FittedModel, *, conditions=N
     practice = _as_practice(recent_practice, line, product)
     conds = resolve_conditions(product, conditions, practice)
     spread = resolve_spread(conds, conditions_spread, practice, default_infeed_temp_sd_c, belt_load_relative_sd)
+    floor_source = floor_note = None
+    if min_throughput_kg_per_h is None:
+        min_throughput_kg_per_h, floor_source, floor_note = throughput_floor(
+            practice, planned_tonnes_per_day, planned_hours_per_day, throughput_floor_share)
     problem = RobustProblem.build(line, product, fitted, conditions=conds, spread=spread, confidence=confidence,
                                   objective=objective, min_throughput_kg_per_h=min_throughput_kg_per_h,
                                   n_samples=samples, rng=rng)
-    return recommend_problem(problem, recent_practice=practice, economics=economics,
-                             planned_tonnes_per_day=planned_tonnes_per_day,
-                             planned_hours_per_day=planned_hours_per_day, rng=rng)
+    rec = recommend_problem(problem, recent_practice=practice, economics=economics,
+                            planned_tonnes_per_day=planned_tonnes_per_day,
+                            planned_hours_per_day=planned_hours_per_day, rng=rng)
+    if floor_note:
+        rec.notes.insert(0, floor_note)
+        rec.inputs["min_throughput_source"] = floor_source
+    return rec
 
 
 def recommend_problem(problem: RobustProblem, *, recent_practice=None, economics: Economics | None = None,
@@ -362,6 +405,10 @@ def _throughput_infeasible(problem: RobustProblem, rng, belt_limited: bool):
     if best is None:
         return {"constraint": "min_throughput_kg_per_h", "required": need, "unit": "kg/h", "message": why + "."}, None
     reach = float(best.scored.nominal.outcome.throughput_kg_per_h[best.index])
+    if reach >= need:  # the constrained screen missed a narrow feasible region the throughput search found
+        logger.warning("recommend %s × %s: the screen at %g kg/h found nothing; the fastest setting that meets "
+                       "the targets (%.0f kg/h) is taken", problem.line.line_id, problem.product.product_id, need, reach)
+        return None, best
     info = {"constraint": "min_throughput_kg_per_h", "required": need, "reachable": round(reach, 1),
             "shortfall": round(need - reach, 1), "unit": "kg/h",
             "message": f"{why}; the most that meets the targets is {reach:.0f} kg/h "
