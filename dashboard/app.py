@@ -7,9 +7,10 @@ with ``layout(ctx, **query)`` (deep links such as ``/model?line=TMP-1&product=..
 from __future__ import annotations
 
 from pathlib import Path
-from urllib.parse import parse_qsl
+from urllib.parse import parse_qsl, urlparse
 
-from dash import Dash, Input, Output, html
+from dash import Dash, Input, Output, State, callback_context, html, no_update
+from flask import request
 
 from optimizer.config import Plant
 
@@ -28,16 +29,36 @@ PAGES = {"/": today_page, "/recommendation": recommendation_page, "/model": mode
 def create_app(plant: Plant, reader=None) -> Dash:
     ctx = DashboardContext(plant, reader)
     app = Dash(__name__, title=f"beltwave — {plant.name}", assets_folder=str(Path(__file__).parent / "assets"),
-               suppress_callback_exceptions=True, serve_locally=True)
-    app.layout = shell(plant.name)
-
-    @app.callback(Output("page", "children"), Input("url", "pathname"), Input("url", "search"))
-    def _route(pathname, search):
+               assets_ignore=r"^plotly-.*\.min\.js$", suppress_callback_exceptions=True, serve_locally=True)
+    def render(pathname, search):
         page = PAGES.get(pathname or "/")
         if page is None:
             return notice(f"No page at {pathname}; use the links above.", "warn")
         query = {k: v for k, v in parse_qsl((search or "").lstrip("?")) if k.isidentifier()}
         return page.layout(ctx, **query)
+
+    def initial_layout():
+        """The shell with the first page already in it, built from the page the browser asks
+        from (the layout request's Referer): a first load needs no routing round trip. Without
+        it (no request, no or foreign Referer) the shell comes empty and the router fills it."""
+        try:
+            ref = urlparse(request.referrer or "")
+            if ref.netloc and ref.netloc != request.host:
+                raise ValueError("a referrer from another site")
+            path = ref.path or "/"
+        except (RuntimeError, ValueError):  # outside a request (start-up checks) or foreign
+            return shell(plant.name)
+        search = f"?{ref.query}" if ref.query else ""
+        return shell(plant.name, render(path, search), path + search)
+
+    app.layout = initial_layout
+
+    @app.callback(Output("page", "children"), Input("url", "pathname"), Input("url", "search"),
+                  State("rendered", "data"))
+    def _route(pathname, search, rendered):
+        if callback_context.triggered_id is None and rendered == (pathname or "/") + (search or ""):
+            return no_update  # the first load: the server sent this page with the layout
+        return render(pathname, search)
 
     for page in PAGES.values():
         page.register(app, ctx)

@@ -28,6 +28,31 @@ def _figure(title: str, x_title: str, y_title: str) -> go.Figure:
     return fig
 
 
+def _band(y0, y1, text, yref="y") -> tuple[dict, dict]:
+    """A horizontal band across the plot and its label (plain dicts: one layout update, not one
+    validated call per shape, which is what keeps building a figure in milliseconds)."""
+    return ({"type": "rect", "xref": "paper", "x0": 0, "x1": 1, "yref": yref, "y0": y0, "y1": y1,
+             "fillcolor": PALETTE["band"], "line": {"width": 0}, "layer": "below"},
+            {"text": text, "xref": "paper", "x": 0, "xanchor": "left", "yref": yref, "y": y1, "yanchor": "bottom",
+             "showarrow": False})
+
+
+def _hline(y, line: dict, text: str | None = None, yref="y") -> tuple[dict, dict | None]:
+    shape = {"type": "line", "xref": "paper", "x0": 0, "x1": 1, "yref": yref, "y0": y, "y1": y, "line": line}
+    label = None if text is None else {"text": text, "xref": "paper", "x": 1, "xanchor": "right", "yref": yref,
+                                       "y": y, "yanchor": "bottom", "showarrow": False}
+    return shape, label
+
+
+def _vline(x, line: dict) -> dict:
+    return {"type": "line", "xref": "x", "x0": x, "x1": x, "yref": "paper", "y0": 0, "y1": 1, "line": line}
+
+
+def _decorate(fig: go.Figure, shapes: list, labels: list) -> None:
+    fig.update_layout(shapes=[*fig.layout.shapes, *shapes],
+                      annotations=[*fig.layout.annotations, *[a for a in labels if a is not None]])
+
+
 def downsample(df: pd.DataFrame, x: str, max_points: int = 2000) -> pd.DataFrame:
     """At most ``max_points`` rows, keeping each bucket's first, lowest and highest values.
 
@@ -56,31 +81,34 @@ def tunnel_profile_figure(profile: pd.DataFrame, *, zone_edges_m=(), max_temp_c=
     ``moisture_pct_wb`` (drawn on a second axis).
     """
     fig = _figure("Temperature along the tunnel", "position from the infeed [m]", "temperature [°C]")
+    shapes, labels = [], []
     if core_band_c is not None:
-        lo, hi = core_band_c
-        fig.add_hrect(y0=lo, y1=hi, fillcolor=PALETTE["band"], line_width=0,
-                      annotation_text="core target band", annotation_position="top left")
+        band, label = _band(core_band_c[0], core_band_c[1], "core target band")
+        shapes.append(band)
+        labels.append(label)
     for col, name, dash in (("hot_c", "hot share", "solid"), ("cold_c", "cold share", "dash"),
                             ("core_c", "core (mid-thickness)", "dot")):
         key = col[:-2]
         fig.add_trace(go.Scatter(x=profile["position_m"], y=profile[col], name=name, mode="lines",
                                  line=dict(color=PALETTE[key], dash=dash, width=3)))
-    if max_temp_c is not None:
-        fig.add_hline(y=max_temp_c, line=dict(color=PALETTE["limit"], dash="dashdot"),
-                      annotation_text=f"hottest allowed {max_temp_c:g} °C")
-    if min_temp_c is not None:
-        fig.add_hline(y=min_temp_c, line=dict(color=PALETTE["cold"], dash="dashdot"),
-                      annotation_text=f"coldest allowed {min_temp_c:g} °C")
-    for x in zone_edges_m:
-        fig.add_vline(x=x, line=dict(color="#bbbbbb", width=1))
+    for value, colour, text in ((max_temp_c, PALETTE["limit"], "hottest allowed"),
+                                (min_temp_c, PALETTE["cold"], "coldest allowed")):
+        if value is not None:
+            shape, label = _hline(value, {"color": colour, "dash": "dashdot"}, f"{text} {value:g} °C")
+            shapes.append(shape)
+            labels.append(label)
+    shapes += [_vline(x, {"color": "#bbbbbb", "width": 1}) for x in zone_edges_m]
     if "moisture_pct_wb" in profile:
         fig.add_trace(go.Scatter(x=profile["position_m"], y=profile["moisture_pct_wb"], name="moisture (mean)",
                                  mode="lines", yaxis="y2", line=dict(color=PALETTE["moisture"], width=3)))
         fig.update_layout(yaxis2=dict(title="moisture [% wet basis]", overlaying="y", side="right",
                                       showgrid=False))
         if moisture_target is not None:
-            fig.add_hline(y=moisture_target, yref="y2", line=dict(color=PALETTE["moisture"], dash="dot"),
-                          annotation_text=f"moisture target {moisture_target:g} %")
+            shape, label = _hline(moisture_target, {"color": PALETTE["moisture"], "dash": "dot"},
+                                  f"moisture target {moisture_target:g} %", yref="y2")
+            shapes.append(shape)
+            labels.append(label)
+    _decorate(fig, shapes, labels)
     return fig
 
 
@@ -110,12 +138,23 @@ def fit_over_time_figure(df: pd.DataFrame, channel: str, unit: str = "°C", max_
     return fig
 
 
-def residuals_figure(df: pd.DataFrame, unit: str = "K") -> go.Figure:
-    """Distribution of prediction errors per channel (predicted − measured)."""
+def residuals_figure(df: pd.DataFrame, unit: str = "K", bins: int = 30) -> go.Figure:
+    """Distribution of prediction errors per channel (predicted − measured), binned on the server.
+
+    Every channel shares the same bins (numpy's histogram over the pooled errors), so the
+    browser draws ``bins`` bars per channel whatever the number of observations.
+    """
     fig = _figure("Prediction error on held-out lots", f"predicted − measured [{unit}]", "observations [count]")
-    for i, (channel, part) in enumerate(df.groupby("channel", sort=False)):
-        fig.add_trace(go.Histogram(x=part["predicted"] - part["measured"], name=str(channel), opacity=0.6,
-                                   marker_color=list(PALETTE.values())[i % 6]))
+    errors = (df["predicted"] - df["measured"]).to_numpy(float) if len(df) else np.zeros(0)
+    finite = errors[np.isfinite(errors)]
+    if finite.size:
+        edges = np.histogram_bin_edges(finite, bins=bins)
+        centres, widths = 0.5 * (edges[:-1] + edges[1:]), np.diff(edges)
+        for i, (channel, part) in enumerate(df.groupby("channel", sort=False)):
+            err = (part["predicted"] - part["measured"]).to_numpy(float)
+            counts, _ = np.histogram(err[np.isfinite(err)], bins=edges)
+            fig.add_trace(go.Bar(x=centres, y=counts, width=widths, name=str(channel), opacity=0.6,
+                                 marker_color=list(PALETTE.values())[i % 6]))
     fig.update_layout(barmode="overlay")
     return fig
 
@@ -129,8 +168,8 @@ def drift_figure(df: pd.DataFrame, *, reference: float | None = None, threshold_
     fig = _figure(f"{parameter} over time", "window start", f"{parameter} [{unit}]")
     if reference is not None and threshold_pct is not None:
         d = reference * threshold_pct / 100.0
-        fig.add_hrect(y0=reference - d, y1=reference + d, fillcolor=PALETTE["band"], line_width=0,
-                      annotation_text=f"±{threshold_pct:g} % alert band")
+        band, label = _band(reference - d, reference + d, f"±{threshold_pct:g} % alert band")
+        _decorate(fig, [band], [label])
     fig.add_trace(go.Scatter(x=df["window_start"], y=df["value"], mode="lines+markers", name=parameter,
                              error_y=dict(type="data", array=1.96 * df["stderr"], visible=True),
                              line=dict(color=PALETTE["predicted"])))
@@ -162,7 +201,7 @@ def margins_figure(df: pd.DataFrame) -> go.Figure:
     fig.add_trace(go.Bar(x=df["margin"], y=[f"{t} [{u}]" for t, u in zip(df["target"], df["unit"])],
                          orientation="h", marker_color=colours, name="margin",
                          text=[f"{m:+.2f}" for m in df["margin"]], textposition="outside"))
-    fig.add_vline(x=0, line=dict(color="#444444"))
+    _decorate(fig, [_vline(0, {"color": "#444444"})], [])
     fig.update_yaxes(automargin=True)
     return fig
 

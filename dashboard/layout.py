@@ -11,16 +11,19 @@ NAV = (("/", "Today"), ("/recommendation", "Recommendation"), ("/model", "Model"
        ("/data", "Data"))
 
 
-def shell(plant_name: str):
+def shell(plant_name: str, page=None, rendered: str | None = None):
+    """The frame of every page; ``page`` is the routed page's content when the server already
+    knows it (first load), ``rendered`` the path and query it was built for."""
     return html.Div(className="shell", children=[
         dcc.Location(id="url"),
+        dcc.Store(id="rendered", data=rendered),
         html.Header(className="top", children=[
             html.Div(plant_name, className="plant-name"),
             html.Nav([dcc.Link(label, href=href, className="nav-link", id=f"nav-{label.lower()}")
                       for href, label in NAV]),
         ]),
         html.Div(CAUTION, className="caution", id="caution"),
-        html.Main(id="page"),
+        html.Main(page, id="page"),
     ])
 
 

@@ -99,6 +99,11 @@ def test_recommendation_page_shows_settings_profile_and_front(app_on_demo):
     duo.wait_for_element("#rec-profile .main-svg", timeout=20)
     _shot(duo, "recommendation")
     assert duo.get_logs() == []
+    # the graphs were drawn by the vendored partial bundle, and the full plotly.js never loaded
+    scripts = duo.driver.execute_script(
+        "return performance.getEntriesByType('resource').map(e => e.name.split('?')[0].split('/').pop())")
+    assert "plotly-basic.min.js" in scripts
+    assert "plotly.min.js" not in scripts
 
 
 def test_what_if_controls_change_the_prediction_as_the_model_says(app_on_demo):

@@ -44,8 +44,12 @@ def test_parity_and_residual_figures_name_channels_and_units():
     fig = figures.parity_figure(df)
     assert [t.name for t in fig.data] == ["equal", "array_mean", "array_max"]
     assert fig.layout.xaxis.title.text == "measured [°C]"
-    res = figures.residuals_figure(df)
-    np.testing.assert_allclose(res.data[0].x, [0.1, -0.1], atol=1e-12)
+    res = figures.residuals_figure(df, bins=3)
+    # errors 0.1, −0.1 (array_mean) and 0.2 (array_max) in three shared bins over [−0.1, 0.2]
+    # (numpy.histogram_bin_edges): widths 0.1, the last bin closed, as numpy counts
+    np.testing.assert_allclose(res.data[0].x, [-0.05, 0.05, 0.15], atol=1e-12)
+    assert list(res.data[0].y) == [1, 0, 1] and list(res.data[1].y) == [0, 0, 1]
+    assert [t.name for t in res.data] == ["array_mean", "array_max"]
 
 
 def test_pareto_drift_margins_and_data_figures():
