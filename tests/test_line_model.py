@@ -410,3 +410,18 @@ def test_a_standing_belt_in_the_dryer_stays_physical():
     assert np.all(np.isfinite(temps))
     assert temps.min() >= 35.0 - 1e-6 and out.hottest_during_passage_c[after].max() <= 100.0 + 1e-6
     assert np.all(out.outfeed_moisture_pct_wb[after] < 31.0)
+
+
+def test_the_integrators_3x3_solve_agrees_with_lapack():
+    # Oracle: numpy.linalg.solve (LAPACK gesv) on systems shaped like the integrator's:
+    # a positive diagonal minus a symmetric conduction matrix with a zero diagonal.
+    from optimizer.line.model import solve3
+
+    rng = np.random.default_rng(0)
+    G = rng.uniform(0.0, 1.0, (400, 3, 3))
+    G = 0.5 * (G + G.transpose(0, 2, 1))
+    G[:, range(3), range(3)] = 0.0
+    A = (rng.uniform(0.01, 5.0, (400, 3)) + G.sum(axis=2))[:, :, None] * np.eye(3) - G
+    b = rng.normal(size=(400, 3)) * 10.0 ** rng.integers(-3, 4, (400, 1))
+    want = np.linalg.solve(A, b[:, :, None])[:, :, 0]
+    np.testing.assert_allclose(solve3(A, b), want, rtol=1e-10, atol=1e-12 * np.abs(want).max())
