@@ -110,6 +110,7 @@ class LineProblem:
             if ch in self.sigma and np.isfinite(value) and value > 0:
                 self.sigma[ch] = max(float(value), 0.1 * CHANNELS[ch][1])
         self.initial = dict(initial or {})
+        self._last = None  # (x and weighting, residuals per product) of the last evaluation
 
     # -- coordinates ------------------------------------------------------------------------
     def x0(self):
@@ -179,14 +180,22 @@ class LineProblem:
         """
         return np.asarray(x) / PRIOR_SD_SCALES
 
+    def _base(self, x) -> dict[str, np.ndarray]:
+        """Residuals per product at ``x``, kept for the last ``x`` and weighting: the optimiser
+        asks for the residuals and then the Jacobian at the same point."""
+        key = (np.asarray(x, float).tobytes(), tuple(sorted(self.sigma.items())))
+        if self._last is None or self._last[0] != key:
+            values = self.values(x)
+            self._last = (key, {pid: self._product_residuals(values, pid) for pid in self.obs})
+        return self._last[1]
+
     def residuals(self, x):
-        values = self.values(x)
-        return np.concatenate([*(self._product_residuals(values, pid) for pid in self.obs), self._prior_residuals(x)])
+        base = self._base(x)
+        return np.concatenate([*(base[pid] for pid in self.obs), self._prior_residuals(x)])
 
     def jacobian(self, x, step: float = 1e-3):
         """Forward differences, recomputing only the products a parameter acts on."""
-        values = self.values(x)
-        base = {pid: self._product_residuals(values, pid) for pid in self.obs}
+        base = self._base(x)
         offsets = np.cumsum([0] + [base[p].size for p in self.obs])
         n_data = offsets[-1]
         J = np.zeros((n_data + len(x), len(x)))
