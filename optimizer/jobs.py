@@ -34,6 +34,7 @@ log = logging.getLogger(__name__)
 
 EXIT_OK, EXIT_WARNINGS, EXIT_FAILED, EXIT_LOCKED = 0, 3, 4, 5
 RECENT_DAYS = 14.0  # what "recent practice" and "products run recently" look back over [d]
+SCATTER_BYTES = 1_000_000  # task arguments larger than this travel to a Dask cluster on their own
 
 
 class LockHeld(BeltwaveError):
@@ -79,23 +80,26 @@ def exclusive_lock(path: Path):
         fh.close()
 
 
-class _Done:
-    """A task already run: what SerialExecutor.submit returns."""
+class _Deferred:
+    """A task of the serial executor: run in this process when its result is first asked for."""
 
-    def __init__(self, value):
-        self._value = value
+    def __init__(self, fn, args):
+        self._fn, self._args, self._done, self._value = fn, args, False, None
 
     def result(self):
+        if not self._done:
+            self._value, self._done, self._args = self._fn(*self._args), True, None
         return self._value
 
 
 class SerialExecutor:
-    """Runs tasks one after another in this process (each at once, when submitted)."""
+    """Runs tasks one after another in this process, each when its result is asked for (so the
+    nightly's steps follow each other and their times are their own)."""
 
     name = "serial"
 
     def submit(self, fn, *args):
-        return _Done(fn(*args))
+        return _Deferred(fn, args)
 
     def as_completed(self, handles):
         return iter(list(handles))
@@ -124,7 +128,10 @@ class DaskExecutor:
             self.name = f"dask local cluster of {workers or 2}"
 
     def submit(self, fn, *args):
-        # tasks come wrapped by _safe: a failing group returns a _Failure instead of raising
+        # tasks come wrapped by _safe: a failing group returns a _Failure instead of raising;
+        # a line's samples go to the cluster as data of their own (scatter), not inside the task
+        args = [self.client.scatter(a) if isinstance(a, pd.DataFrame) and a.memory_usage().sum() > SCATTER_BYTES
+                else a for a in args]
         return self.client.submit(fn, *args, pure=False)
 
     def as_completed(self, handles):
@@ -316,10 +323,12 @@ def _run_locked(plant, plan_path, plan_date, dry_run, executor, now) -> NightlyR
             fit_jobs[executor.submit(_safe(_fit_task), plant, lid, products, samples, qa, incumbents[lid])] = lid
             del samples, qa
         rec_jobs: dict = {}  # (line, product) -> (plan entry, model, handle)
-        t_rec = None
+        t_rec, prep_s = None, 0.0  # first recommendation submitted; time spent preparing them here
+        parallel = not isinstance(executor, SerialExecutor)
 
         def submit_recommendations(lid):
-            nonlocal t_rec
+            nonlocal t_rec, prep_s
+            t_prep = time.perf_counter()
             for g_lid, pid, entry in groups:
                 if g_lid != lid:
                     continue
@@ -335,6 +344,7 @@ def _run_locked(plant, plan_path, plan_date, dry_run, executor, now) -> NightlyR
                 t_rec = t_rec or time.perf_counter()
                 rec_jobs[(lid, pid)] = (entry, model, executor.submit(_safe(recommend_task), plant, lid, pid, model,
                                                                       recent, entry, plan_date))
+            prep_s += time.perf_counter() - t_prep
 
         for lid in plant.lines:
             if lid not in fit_lines:
@@ -354,10 +364,14 @@ def _run_locked(plant, plan_path, plan_date, dry_run, executor, now) -> NightlyR
             alerts += a
             if error:
                 summary["errors"].append(error)
+        # serial: the steps follow each other (the recommendations' preparation, done while the
+        # fits are recorded, counts as recommending); parallel: they overlap, each time running
+        # from its step's first task
         summary["steps"]["fit"] = {"lines": fit_lines, "decisions": [d.to_json() for d in decisions],
-                                   "seconds": time.perf_counter() - t0}
+                                   "seconds": time.perf_counter() - t0 - (0.0 if parallel else prep_s)}
         # 3. the recommendations, gathered in the plan's order
-        t_rec = t_rec or time.perf_counter()
+        t3 = time.perf_counter()
+        t_rec = t_rec if (parallel and t_rec is not None) else t3
         todo = [(lid, pid, rec_jobs[(lid, pid)][0]) for lid, pid, _ in groups if (lid, pid) in rec_jobs]
         fitted = [rec_jobs[(lid, pid)][1] for lid, pid, _ in todo]
         results = [rec_jobs[(lid, pid)][2].result() for lid, pid, _ in todo]
@@ -384,7 +398,7 @@ def _run_locked(plant, plan_path, plan_date, dry_run, executor, now) -> NightlyR
             by_line[r["line_id"]] = by_line.get(r["line_id"], 0) + 1
         summary["steps"]["recommend"] = {"groups": len(groups), "new": len(records), "exported": exported,
                                          "by_line": by_line,
-                                         "seconds": time.perf_counter() - t_rec}
+                                         "seconds": time.perf_counter() - t_rec + (0.0 if parallel else prep_s)}
         # 4. alerts
         if alerts:
             store.add_alerts(alerts, run_id=run_id)
