@@ -203,6 +203,9 @@ def margins_figure(df: pd.DataFrame) -> go.Figure:
                          text=[f"{m:+.2f}" for m in df["margin"]], textposition="outside"))
     _decorate(fig, [_vline(0, {"color": "#444444"})], [])
     fig.update_yaxes(automargin=True)
+    # its own height (a bar per target): in a grid cell beside a short table the graph would
+    # otherwise shrink to the cell's height and hide the bars
+    fig.update_layout(height=max(240, 150 + 45 * len(df)), showlegend=False)
     return fig
 
 

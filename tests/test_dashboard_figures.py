@@ -64,6 +64,7 @@ def test_pareto_drift_margins_and_data_figures():
     assert (rect.y0, rect.y1) == (0.8 - 0.024, 0.8 + 0.024)
     m = figures.margins_figure(pd.DataFrame({"target": ["core", "hottest"], "margin": [0.4, -0.2], "unit": ["K", "K"]}))
     assert list(m.data[0].marker.color) == [figures.PALETTE["core"], figures.PALETTE["hot"]]
+    assert m.layout.height >= 240  # its own height: a bar per target stays readable beside a table
     lots = figures.lots_per_day_figure(pd.DataFrame({"date": ["d1", "d1"], "line_id": ["A", "B"], "lots": [3, 4]}))
     assert {t.name for t in lots.data} == {"A", "B"}
     q = figures.quarantine_figure(pd.DataFrame({"reason": ["a", "b"], "rows": [5, 2]}))
