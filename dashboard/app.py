@@ -9,7 +9,7 @@ from __future__ import annotations
 from pathlib import Path
 from urllib.parse import parse_qsl, urlparse
 
-from dash import Dash, Input, Output, State, callback_context, html, no_update
+from dash import Dash, Input, Output, State, html, no_update
 from flask import request
 
 from optimizer.config import Plant
@@ -53,12 +53,13 @@ def create_app(plant: Plant, reader=None) -> Dash:
 
     app.layout = initial_layout
 
-    @app.callback(Output("page", "children"), Input("url", "pathname"), Input("url", "search"),
-                  State("rendered", "data"))
+    @app.callback(Output("page", "children"), Output("rendered", "data"), Input("url", "pathname"),
+                  Input("url", "search"), State("rendered", "data"))
     def _route(pathname, search, rendered):
-        if callback_context.triggered_id is None and rendered == (pathname or "/") + (search or ""):
-            return no_update  # the first load: the server sent this page with the layout
-        return render(pathname, search)
+        key = (pathname or "/") + (search or "")
+        if rendered == key:  # this page is already shown (the first load: sent with the layout)
+            return no_update, no_update
+        return render(pathname, search), key
 
     for page in PAGES.values():
         page.register(app, ctx)

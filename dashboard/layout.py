@@ -13,7 +13,7 @@ NAV = (("/", "Today"), ("/recommendation", "Recommendation"), ("/model", "Model"
 
 def shell(plant_name: str, page=None, rendered: str | None = None):
     """The frame of every page; ``page`` is the routed page's content when the server already
-    knows it (first load), ``rendered`` the path and query it was built for."""
+    knows it (first load), ``rendered`` the path and query of the page shown (the router keeps it)."""
     return html.Div(className="shell", children=[
         dcc.Location(id="url"),
         dcc.Store(id="rendered", data=rendered),
