@@ -36,18 +36,12 @@ return [performance.now(), graphs.length];
 
 def _driver():
     from selenium import webdriver
-    from selenium.webdriver.chrome.options import Options
     from selenium.webdriver.chrome.service import Service
 
-    options = Options()
-    options.binary_location = shutil.which("chromium") or "/usr/bin/chromium"
-    for flag in ("--headless", "--no-sandbox", "--disable-gpu", "--disable-dev-shm-usage",
-                 "--disable-background-networking", "--disable-component-update", "--disable-sync",
-                 "--no-first-run", "--disable-quic", "--window-size=1400,1800",
-                 "--host-resolver-rules=MAP * ~NOTFOUND, EXCLUDE 127.0.0.1, EXCLUDE localhost"):
-        options.add_argument(flag)
+    from tests.browser import chromium_options
+
     return webdriver.Chrome(service=Service(shutil.which("chromedriver") or "/usr/bin/chromedriver"),
-                            options=options)
+                            options=chromium_options())
 
 
 def _render_ms(driver, url: str, condition: str, timeout_s: float = 30.0) -> tuple[float, int]:

@@ -11,6 +11,25 @@ import subprocess
 import sys
 
 
+#: Headless flags for Debian's Chromium on a closed network (no background connections, no
+#: look-ups beyond this machine); shared by the browser tests and bench/bench_dashboard.py.
+CHROMIUM_FLAGS = ("--headless", "--no-sandbox", "--disable-gpu", "--disable-dev-shm-usage",
+                  "--disable-background-networking", "--disable-component-update", "--disable-sync",
+                  "--no-first-run", "--disable-quic", "--window-size=1400,1800",
+                  "--host-resolver-rules=MAP * ~NOTFOUND, EXCLUDE 127.0.0.1, EXCLUDE localhost")
+
+
+def chromium_options():
+    """Selenium options for /usr/bin/chromium with CHROMIUM_FLAGS."""
+    from selenium.webdriver.chrome.options import Options
+
+    options = Options()
+    options.binary_location = shutil.which("chromium") or "/usr/bin/chromium"
+    for flag in CHROMIUM_FLAGS:
+        options.add_argument(flag)
+    return options
+
+
 def main() -> int:
     if shutil.which("chromium") and shutil.which("chromedriver"):
         return 0

@@ -71,13 +71,6 @@ def _file_day(name: str) -> dt.date | None:
 
 def pytest_setup_options():
     """Headless Chromium for dash_duo (Debian's /usr/bin/chromium; closed-network flags)."""
-    from selenium.webdriver.chrome.options import Options
+    from browser import chromium_options
 
-    options = Options()
-    options.binary_location = shutil.which("chromium") or "/usr/bin/chromium"
-    for flag in ("--headless", "--no-sandbox", "--disable-gpu", "--disable-dev-shm-usage",
-                 "--disable-background-networking", "--disable-component-update", "--disable-sync",
-                 "--no-first-run", "--disable-quic", "--window-size=1400,1800",
-                 "--host-resolver-rules=MAP * ~NOTFOUND, EXCLUDE 127.0.0.1, EXCLUDE localhost"):
-        options.add_argument(flag)
-    return options
+    return chromium_options()
