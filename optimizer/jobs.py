@@ -191,9 +191,29 @@ def recommend_task(plant: Plant, line_id: str, product_id: str, fitted, recent, 
 
 
 def _fit_task(plant, line_id, products, samples, qa, incumbents):
+    """A line's fit report and the seconds the fit took where it ran (for the next run's order)."""
     from .train import fit_task
 
-    return fit_task(plant, line_id, products, samples, qa, incumbents)
+    t0 = time.perf_counter()
+    report = fit_task(plant, line_id, products, samples, qa, incumbents)
+    return report, time.perf_counter() - t0
+
+
+def longest_first(store, line_ids: list[str]) -> list[str]:
+    """The lines to fit, the slowest first by the newest finished run that timed them.
+
+    With fewer workers than lines, a slow fit started last keeps one worker busy while the
+    others wait (and its line's recommendations after it): starting the longest first is the
+    classic list-scheduling rule. Lines never timed (a first fit, the slowest) lead; ties keep
+    the plant's order.
+    """
+    known: dict[str, float] = {}
+    runs = store.job_runs(kind="nightly", limit=20)
+    for summary in runs["summary"] if not runs.empty else []:
+        for lid, secs in ((summary.get("steps") or {}).get("fit") or {}).get("seconds_by_line", {}).items():
+            known.setdefault(lid, float(secs))
+    order = {lid: i for i, lid in enumerate(line_ids)}
+    return sorted(line_ids, key=lambda lid: (-known.get(lid, float("inf")), order[lid]))
 
 
 def recent_samples(store, line_id: str, product_id: str) -> pd.DataFrame:
@@ -314,17 +334,19 @@ def _run_locked(plant, plan_path, plan_date, dry_run, executor, now) -> NightlyR
         # a parallel executor keeps every worker busy; the serial one runs them in order
         t0 = time.perf_counter()
         fit_lines = [lid for lid in plant.lines if new_rows.get(lid) and lid in have]
+        parallel = not isinstance(executor, SerialExecutor)
+        submit_order = longest_first(store, fit_lines) if parallel else fit_lines
         groups = _products_to_plan(plant, store, plan, plan_date)
         existing = store.recommendations(date=plan_date)
         incumbents, fit_jobs = {}, {}
-        for lid in fit_lines:
+        for lid in submit_order:
             products = list(plant.line(lid).products)
             samples, qa, incumbents[lid] = train_inputs(plant, store, lid, products)
             fit_jobs[executor.submit(_safe(_fit_task), plant, lid, products, samples, qa, incumbents[lid])] = lid
             del samples, qa
         rec_jobs: dict = {}  # (line, product) -> (plan entry, model, handle)
         t_rec, prep_s = None, 0.0  # first recommendation submitted; time spent preparing them here
-        parallel = not isinstance(executor, SerialExecutor)
+        fit_seconds: dict[str, float] = {}
 
         def submit_recommendations(lid):
             nonlocal t_rec, prep_s
@@ -355,7 +377,8 @@ def _run_locked(plant, plan_path, plan_date, dry_run, executor, now) -> NightlyR
             if isinstance(res, _Failure):
                 by_fit[lid] = ([], [], f"fit of line {lid} failed: {res.error}; its active models stay")
             else:
-                by_fit[lid] = (*record_fits(plant, store, res, incumbents[lid]), None)
+                report, fit_seconds[lid] = res
+                by_fit[lid] = (*record_fits(plant, store, report, incumbents[lid]), None)
             submit_recommendations(lid)
         decisions = []
         for lid in fit_lines:
@@ -368,6 +391,8 @@ def _run_locked(plant, plan_path, plan_date, dry_run, executor, now) -> NightlyR
         # fits are recorded, counts as recommending); parallel: they overlap, each time running
         # from its step's first task
         summary["steps"]["fit"] = {"lines": fit_lines, "decisions": [d.to_json() for d in decisions],
+                                   "seconds_by_line": {lid: round(fit_seconds[lid], 3) for lid in fit_lines
+                                                       if lid in fit_seconds},
                                    "seconds": time.perf_counter() - t0 - (0.0 if parallel else prep_s)}
         # 3. the recommendations, gathered in the plan's order
         t3 = time.perf_counter()

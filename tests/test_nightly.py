@@ -13,7 +13,7 @@ import pytest
 
 from optimizer.config import load_plant
 from optimizer.jobs import (EXIT_FAILED, EXIT_LOCKED, EXIT_OK, EXIT_WARNINGS, DaskExecutor, exclusive_lock,
-                            plant_paths, run_nightly)
+                            longest_first, plant_paths, run_nightly)
 from optimizer.store import Store
 from synthetic import synthetic_line_logs
 
@@ -69,6 +69,7 @@ def test_first_run_ingests_fits_promotes_recommends_and_exports(first_run):
     decisions = steps["fit"]["decisions"]
     pork = [d for d in decisions if d["product_id"] == "PORK-SHLDR-BLK"]
     assert pork and pork[0]["promoted"] and pork[0]["version_id"] is not None
+    assert set(steps["fit"]["seconds_by_line"]) == {"TMP-1"} and steps["fit"]["seconds_by_line"]["TMP-1"] > 0
     assert steps["recommend"]["new"] == 1  # only the product run recently on a line with data
     exported = steps["recommend"]["exported"]
     assert exported and all(Path(p).exists() for p in exported)
@@ -105,6 +106,29 @@ def test_a_second_run_while_one_holds_the_lock_exits_with_its_own_code(first_run
         res = run_nightly(plant, plan_date="2026-05-05")
     assert res.exit_code == EXIT_LOCKED
     assert "another nightly run holds the lock" in res.lines[0]
+
+
+class _RunsOnly:
+    """A store stand-in holding only job runs (newest first, as Store.job_runs gives them)."""
+
+    def __init__(self, summaries):
+        import pandas as pd
+
+        self.runs = pd.DataFrame({"summary": summaries})
+
+    def job_runs(self, kind=None, limit=None):
+        return self.runs.head(limit)
+
+
+def test_parallel_fits_start_with_the_line_that_took_longest_last_time():
+    # the newest run that timed a line counts; a line never timed (a first fit) leads; ties keep
+    # the plant's order
+    newest = {"steps": {"fit": {"seconds_by_line": {"A": 3.0, "B": 11.0}}}}
+    older = {"steps": {"fit": {"seconds_by_line": {"A": 20.0, "C": 7.0}}}}
+    no_fit = {"steps": {"ingest": {}}}
+    store = _RunsOnly([no_fit, newest, older, {}])
+    assert longest_first(store, ["A", "B", "C", "D", "E"]) == ["D", "E", "B", "C", "A"]
+    assert longest_first(_RunsOnly([]), ["B", "A"]) == ["B", "A"]
 
 
 def test_a_corrupt_file_is_reported_and_the_run_finishes_with_warnings(tmp_path):
