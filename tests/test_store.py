@@ -82,6 +82,12 @@ def test_bad_url_is_a_clear_error():
         Store.open("not a url")
 
 
+def test_a_url_whose_driver_is_missing_is_a_clear_error():
+    # SQLAlchemy knows no "nosuchdriver" for PostgreSQL: the error names the store and the fix
+    with pytest.raises(StoreError, match=r"database driver is missing.*pip install -e '.\[postgres\]'"):
+        Store.open("postgresql+nosuchdriver://user@host/beltwave")
+
+
 def test_a_failed_transaction_leaves_nothing(store):
     with pytest.raises(RuntimeError):
         with store.writer() as w:

@@ -2,8 +2,8 @@
 
 Set ``BELTWAVE_TEST_POSTGRES_URL`` to a SQLAlchemy URL of a server where the user may create
 databases, e.g. ``postgresql+psycopg://postgres@/postgres?host=/tmp/pg&port=55432``, and install
-``psycopg[binary]``. Each test creates a database of its own and drops it afterwards. Without the
-variable these tests skip: CI runs on SQLite, the embedded default.
+the driver (``pip install -e '.[postgres]'``). Each test creates a database of its own and drops
+it afterwards. Without the variable these tests skip: CI runs on SQLite, the embedded default.
 """
 from __future__ import annotations
 
@@ -27,7 +27,7 @@ pytestmark = pytest.mark.skipif(not SERVER_URL, reason="BELTWAVE_TEST_POSTGRES_U
 @pytest.fixture
 def pg_url():
     sa = pytest.importorskip("sqlalchemy")
-    pytest.importorskip("psycopg", reason="pip install 'psycopg[binary]' for the PostgreSQL tests")
+    pytest.importorskip("psycopg", reason="pip install -e '.[postgres]' for the PostgreSQL tests")
     server = sa.engine.make_url(SERVER_URL)
     name = f"beltwave_test_{uuid.uuid4().hex[:12]}"
     admin = sa.create_engine(server, isolation_level="AUTOCOMMIT")

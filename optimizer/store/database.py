@@ -24,7 +24,7 @@ import pyarrow.compute as pc
 import pyarrow.parquet as pq
 from sqlalchemy import create_engine, event, func, insert, inspect, select, update
 from sqlalchemy.engine import Connection, Engine, make_url
-from sqlalchemy.exc import ArgumentError, OperationalError
+from sqlalchemy.exc import ArgumentError, NoSuchModuleError, OperationalError
 from sqlalchemy.pool import StaticPool
 
 from ..config import CANONICAL_COLUMNS
@@ -177,7 +177,13 @@ class Store:
             engine = _sqlite_engine(parsed, readonly)
         else:
             options = {"postgresql_readonly": True} if readonly and parsed.get_backend_name() == "postgresql" else {}
-            engine = create_engine(url, execution_options=options)
+            try:
+                engine = create_engine(url, execution_options=options)
+            except (ImportError, NoSuchModuleError) as exc:
+                hint = ("pip install -e '.[postgres]'" if parsed.get_backend_name() == "postgresql"
+                        else "install the database driver this URL names")
+                raise StoreError(f"cannot open the store {url}: its database driver is missing ({exc}); {hint}, "
+                                 "or use the embedded default sqlite:///data/beltwave.sqlite") from None
         store = cls(engine, url, readonly)
         try:
             store._prepare_schema()
