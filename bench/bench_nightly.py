@@ -2,13 +2,12 @@
 
 Reports the end-to-end seconds of the new day's run, the share of each step, and the
 speed-up of a local Dask cluster of 2 workers (its start included) on the same new day.
-The history's QA readings arrive with the history and the new day's with the new day, as a
-plant sends them (the generator writes one QA file per line for its whole span).
+The generator writes process and QA files per line and local day, as a plant sends them: the
+history's arrive with the history, the new day's with the new day.
 """
 from __future__ import annotations
 
 import datetime as dt
-import gzip
 import shutil
 import tempfile
 import time
@@ -31,27 +30,6 @@ def _plant(folder: Path):
     return load_plant(folder / "plant.toml")[0]
 
 
-def _split_qa_files(staging: Path, last: str) -> list[Path]:
-    """The generator writes one QA file per line for the whole span; a plant sends them daily.
-
-    Cut each into the history's rows and the new day's (local date ``last``), so that the new
-    day's run sees one day of QA readings as it would at a plant. Returns the new day's files.
-    """
-    out = []
-    for f in sorted(staging.glob("*_qa_*.csv.gz")):
-        header, *rows = gzip.decompress(f.read_bytes()).decode("utf-8").splitlines()
-        old = [r for r in rows if not r.startswith(last)]
-        new = [r for r in rows if r.startswith(last)]
-        line_id = f.name.split("_qa_")[0]
-        f.unlink()
-        (staging / f"{line_id}_qa_history.csv.gz").write_bytes(gzip.compress(("\n".join([header, *old]) + "\n").encode()))
-        if new:
-            day = staging / f"{line_id}_qa_{last}.csv.gz"
-            day.write_bytes(gzip.compress(("\n".join([header, *new]) + "\n").encode()))
-            out.append(day)
-    return out
-
-
 def run(quick: bool = False) -> list[dict]:
     days = 8 if quick else 61
     start = dt.date(2026, 8, 3)
@@ -62,8 +40,7 @@ def run(quick: bool = False) -> list[dict]:
         staging = tmp / "staging"
         plant = _plant(tmp / "a")
         generate_demo_logs(plant, staging, start=start.isoformat(), days=days, interval_s=10, seed=5)
-        new_day = _split_qa_files(staging, last)
-        new_day += [p for p in staging.iterdir() if p.name.endswith(f"_{last}.csv.gz") and "_qa_" not in p.name]
+        new_day = [p for p in staging.iterdir() if p.name.endswith(f"_{last}.csv.gz")]  # process and QA files
         timings = {}
         for mode in ("serial", "dask"):
             folder = tmp / mode

@@ -198,7 +198,7 @@ class LineTruth:
     standby_kw: float
     energy_start_kwh: float
     files: list[str] = field(default_factory=list)
-    qa_file: str = ""
+    qa_files: list[str] = field(default_factory=list)  # one per local day with QA readings
     column_layout: dict[str, str] = field(default_factory=dict)  # canonical -> file column name
 
 
@@ -276,7 +276,7 @@ class DemoManifest:
     @classmethod
     def from_json(cls, data: dict) -> "DemoManifest":
         d = dict(data)
-        d["lines"] = {k: LineTruth(**v) for k, v in d["lines"].items()}
+        d["lines"] = {k: LineTruth(**_qa_files_of(v)) for k, v in d["lines"].items()}
         d["models"] = [ModelTruth(**m) for m in d["models"]]
         d["lots"] = [LotRecord(**x) for x in d["lots"]]
         d["faults"] = [FaultRecord(**x) for x in d["faults"]]
@@ -302,6 +302,15 @@ class DemoManifest:
 def demo_manifest_path(out_dir) -> Path:
     """Where :func:`generate_demo_logs` writes the manifest of ``out_dir``."""
     return Path(out_dir) / MANIFEST_NAME
+
+
+def _qa_files_of(line_truth: dict) -> dict:
+    """A line's truth as stored; manifests of earlier versions named one QA file for the span."""
+    d = dict(line_truth)
+    if "qa_file" in d:
+        old = d.pop("qa_file")
+        d.setdefault("qa_files", [old] if old else [])
+    return d
 
 
 # ------------------------------------------------------------------ calendar
@@ -1053,22 +1062,29 @@ class _LineSim:
                                               self.reexport_start, end_stamp, {"rows": len(lines)}))
         self.pending_reexport = None
 
-    def write_qa(self) -> str:
+    def write_qa(self) -> list[str]:
+        """The QA readings as a plant sends them: one file per line and local day with readings
+        (a reading belongs to the day its sample was taken, as the process file of that day)."""
         w, line = self.window, self.line
-        name = f"{line.line_id}_qa_{w.dates[0].isoformat()}_{w.dates[-1].isoformat()}.csv.gz"
-        stamps = w.iso([r[0] for r in self.qa_rows]) if self.qa_rows else []
-        sep = self.sep
-        lines = []
-        for s, (_, lot, position, temp, moist) in zip(stamps, self.qa_rows):
+        times = np.array([r[0] for r in self.qa_rows], dtype=np.int64)
+        days = np.searchsorted(np.asarray(w.day_start_s), times, side="right") - 1
+        stamps = w.iso(times) if self.qa_rows else []
+        header = self.sep.join(line.source_column(c) for c in QA_COLUMNS)
+        by_day: dict[int, list[str]] = {}
+        for d, s, (_, lot, position, temp, moist) in zip(days.tolist(), stamps, self.qa_rows):
             cells = (s, line.line_id, lot.product_id, lot.lot_id, position,
                      "" if np.isnan(temp) else f"{temp:.1f}", "" if np.isnan(moist) else f"{moist:.2f}")
             if self.decimal != ".":
                 cells = cells[:5] + tuple(c.replace(".", self.decimal) for c in cells[5:])
-            lines.append(sep.join(cells))
-        header = sep.join(line.source_column(c) for c in QA_COLUMNS)
-        text = header + "\n" + "".join(x + "\n" for x in lines)
-        (self.job.out_dir / name).write_bytes(gzip.compress(text.encode("utf-8"), compresslevel=GZIP_LEVEL, mtime=0))
-        return name
+            by_day.setdefault(d, []).append(self.sep.join(cells))
+        names = []
+        for d in sorted(by_day):
+            name = f"{line.line_id}_qa_{w.dates[d].isoformat()}.csv.gz"
+            text = header + "\n" + "".join(x + "\n" for x in by_day[d])
+            (self.job.out_dir / name).write_bytes(gzip.compress(text.encode("utf-8"), compresslevel=GZIP_LEVEL,
+                                                                mtime=0))
+            names.append(name)
+        return names
 
 
 def _cost(job: _LineJob) -> float:
@@ -1084,8 +1100,8 @@ def _run_line(job: _LineJob) -> _LineResult:
         sim.run_day(d)
     qa = sim.write_qa()
     sim.truth.files = list(sim.files)
-    sim.truth.qa_file = qa
-    return _LineResult(job.line_id, sim.truth, job.models, sim.lots, sim.fault_records, sim.files + [qa])
+    sim.truth.qa_files = qa
+    return _LineResult(job.line_id, sim.truth, job.models, sim.lots, sim.fault_records, sim.files + qa)
 
 
 # ------------------------------------------------------------------ the entry point
@@ -1144,7 +1160,7 @@ def generate_demo_logs(plant: Plant, out_dir, *, start=DEMO_DEFAULTS["start"], d
     >>> m = generate_demo_logs(plant, tempfile.mkdtemp(), start="2026-10-05", days=1, interval_s=600,
     ...                        faults=False, workers=1)
     >>> m.files[:2], len(m.lots) > 0
-    (['TMP-1_2026-10-05.csv.gz', 'TMP-1_qa_2026-10-05_2026-10-05.csv.gz'], True)
+    (['TMP-1_2026-10-05.csv.gz', 'TMP-1_qa_2026-10-05.csv.gz'], True)
     """
     first = _parse_start(start)
     if isinstance(days, bool) or not isinstance(days, int) or days < 1:

@@ -50,7 +50,7 @@ def demo_runs(tmp_path_factory) -> DemoRuns:
     results, delivered = [], []
     for k in range(DEMO_DAYS):
         day = DEMO_START + dt.timedelta(days=k)
-        todays = [f for f in files if _file_day(f.name) == day or (k == 0 and "_qa_" in f.name)]
+        todays = [f for f in files if _file_day(f.name) == day]  # process and QA files, as a plant sends them
         for f in todays:
             shutil.copy(f, tmp / "incoming" / f.name)
         delivered.append(sorted(f.name for f in todays))

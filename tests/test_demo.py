@@ -100,13 +100,19 @@ def rows_per_day(day: str) -> int:
 
 
 # ------------------------------------------------------------------ files and layout
-def test_one_file_per_line_per_day_and_a_qa_file(faulted):
+def test_one_process_file_and_one_qa_file_per_line_per_day(faulted):
     out, manifest = faulted
     names = {p.name for p in out.iterdir()} - {"manifest.json"}
     for line_id in PLANT.lines:
         for day in DATES:
             assert f"{line_id}_{day}.csv.gz" in names
-        assert f"{line_id}_qa_{DATES[0]}_{DATES[-1]}.csv.gz" in names
+        # a QA file for each local day with readings (in day order), holding that day's only
+        qa_files = manifest.lines[line_id].qa_files
+        days = [name.removeprefix(f"{line_id}_qa_").removesuffix(".csv.gz") for name in qa_files]
+        assert qa_files and days == sorted(set(days)) and set(days) <= set(DATES)
+        for day, name in zip(days, qa_files):
+            stamps = read_table(out / name, line_id)["timestamp"]
+            assert len(stamps) > 0 and stamps.str.startswith(day).all(), name
     assert names == set(manifest.files)
     assert demo_manifest_path(out) == out / "manifest.json"
     assert DemoManifest.read(out) == manifest
@@ -433,7 +439,7 @@ def test_qa_samples_belong_to_lots_and_lab_moisture_agrees_with_the_nir(clean):
     lots = {lot.lot_id: lot for lot in manifest.lots}
     for line_id, truth in manifest.lines.items():
         line = PLANT.line(line_id)
-        qa = read_table(out / truth.qa_file, line_id)
+        qa = pd.concat([read_table(out / name, line_id) for name in truth.qa_files], ignore_index=True)
         assert len(qa) > 0 and set(qa["lot_id"]) <= set(lots)
         for _, row in qa.iterrows():
             lot = lots[row["lot_id"]]
@@ -450,7 +456,7 @@ def test_qa_samples_belong_to_lots_and_lab_moisture_agrees_with_the_nir(clean):
             nir = logs.loc[qa["t_s"], "outfeed_moisture_pct_wb"].to_numpy()
             diff = qa["moisture_pct_wb"].to_numpy() - (nir - truth.sensor_offsets["outfeed_moisture_pct_wb"])
             assert np.all(np.abs(diff) < 5 * math.hypot(LAB_SD_PCT, NIR_SD_PCT))
-    assert raw_text(out / manifest.lines["TMP-2"].qa_file).startswith("Time;line_id;product_id;lot_id;position;")
+    assert raw_text(out / manifest.lines["TMP-2"].qa_files[0]).startswith("Time;line_id;product_id;lot_id;position;")
 
 
 # ------------------------------------------------------------------ the truth in the manifest
