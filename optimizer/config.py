@@ -31,6 +31,9 @@ CANONICAL_COLUMNS = (
     "outfeed_moisture_pct_wb", "air_rh_pct",
 )
 ZONE_COLUMN_STEMS = ("forward_kw", "reflected_kw")
+#: Columns only QA probe sample files carry (shared run-log format), and the positions they name.
+QA_ONLY_COLUMNS = ("position", "temp_c", "moisture_pct_wb")
+QA_POSITIONS = ("core", "surface", "edge", "lab")
 UNIT_CHOICES = {
     "temp": ("C", "F", "K"),
     "power": ("kW", "W"),
@@ -41,6 +44,11 @@ UNIT_CHOICES = {
 }
 TOP_LEVEL_KEYS = ("plant", "store", "paths", "economics", "fit", "recommend", "nightly", "alerts",
                   "lines", "products")
+
+
+def is_mappable_column(name: str) -> bool:
+    """A canonical column of process logs or of QA probe sample files."""
+    return is_canonical_column(name) or name in QA_ONLY_COLUMNS
 
 
 def unit_kind(canonical: str) -> str | None:
@@ -114,6 +122,7 @@ class Line:
     csv: CsvLayout = field(default_factory=CsvLayout)
     columns: dict[str, str] = field(default_factory=dict)  # canonical -> source column
     units: dict[str, str] = field(default_factory=dict)  # canonical -> source unit
+    qa_positions: dict[str, str] = field(default_factory=dict)  # canonical position -> the export's word
 
     @property
     def zone_count(self) -> int:
@@ -289,7 +298,7 @@ _LINE_KEYS = {
     "kind", "frequency_mhz", "zone_length_m", "zone_max_kw", "total_power_cap_kw", "infeed_choke_m",
     "outfeed_choke_m", "belt_width_m", "belt_speed_min_m_per_min", "belt_speed_max_m_per_min",
     "generator_efficiency", "products", "outfeed_array", "aux_power_kw", "air_heater_kw_per_k",
-    "ambient_temp_c", "power_step_kw", "csv", "columns", "units", "description",
+    "ambient_temp_c", "power_step_kw", "csv", "columns", "units", "qa_positions", "description",
 }
 _PRODUCT_KEYS = {
     "process", "description", "composition", "piece_thickness_m", "targets", "typical",
@@ -353,19 +362,33 @@ def _read_line(r: _Reader, line_id: str, d: dict, base: Path) -> Line | None:
                       "(e.g. Europe/Berlin)")
     columns = r.table(d, "columns", p, required=False)
     for canonical, source in columns.items():
-        if not is_canonical_column(canonical):
+        if not is_mappable_column(canonical):
             r.problem(f"{p}columns.{canonical}", "is not a canonical column name; the keys are canonical "
-                      "names (e.g. belt_speed_m_per_min, zone1_forward_kw), the values your export's names")
+                      "names (e.g. belt_speed_m_per_min, zone1_forward_kw, or position and temp_c of QA "
+                      "files), the values your export's names")
         if not isinstance(source, str):
             r.problem(f"{p}columns.{canonical}", "must be the source column name as text")
     units = r.table(d, "units", p, required=False)
     for canonical, unit in units.items():
         kind_u = unit_kind(canonical)
-        if kind_u is None or not is_canonical_column(canonical):
+        if kind_u is None or not is_mappable_column(canonical):
             r.problem(f"{p}units.{canonical}", "is not a numeric canonical column")
         elif unit not in UNIT_CHOICES[kind_u]:
             r.problem(f"{p}units.{canonical}", f"'{unit}' is not a known unit; use one of: "
                       + ", ".join(UNIT_CHOICES[kind_u]))
+    positions = r.table(d, "qa_positions", p, required=False)
+    words = {}
+    for canonical, word in positions.items():
+        if canonical not in QA_POSITIONS:
+            r.problem(f"{p}qa_positions.{canonical}", f"is not a QA position; the keys are {', '.join(QA_POSITIONS)}"
+                      ", the values the words your QA export writes for them")
+        elif not isinstance(word, str) or not word.strip():
+            r.problem(f"{p}qa_positions.{canonical}", "must be the word your QA export writes, as text")
+        elif word.strip().lower() in words:
+            r.problem(f"{p}qa_positions.{canonical}", f"'{word}' is also given for "
+                      f"{words[word.strip().lower()]}; each position needs a word of its own")
+        else:
+            words[word.strip().lower()] = canonical
     step = r.number(d, "power_step_kw", p, required=False, low=0, low_open=True, hint=" [kW]")
     if None in (kind, f_mhz, cap, vmin, vmax, eff) or not lengths or not ratings:
         return None
@@ -381,6 +404,7 @@ def _read_line(r: _Reader, line_id: str, d: dict, base: Path) -> Line | None:
         air_heater_kw_per_k=r.number(d, "air_heater_kw_per_k", p, default=0.0, low=0.0),
         ambient_temp_c=r.number(d, "ambient_temp_c", p, default=20.0, low=-40, high=60),
         power_step_kw=step, csv=csv, columns=dict(columns), units=dict(units),
+        qa_positions={c: w.strip() for c, w in positions.items() if c in QA_POSITIONS and isinstance(w, str)},
     )
 
 

@@ -71,12 +71,30 @@ def test_unknown_line_or_product_is_named():
      r"lines\.TMP-2\.columns\.belt_sped: is not a canonical column name"),
     (lambda d: d["lines"]["TMP-1"].update(zone_power_kw=[1]),
      r"lines\.TMP-1\.zone_power_kw: unknown key"),
+    (lambda d: d["lines"]["TMP-1"].update(qa_positions={"centre": "Kern"}),
+     r"lines\.TMP-1\.qa_positions\.centre: is not a QA position; the keys are core, surface, edge, lab"),
+    (lambda d: d["lines"]["TMP-1"].update(qa_positions={"core": "K", "edge": "k"}),
+     r"lines\.TMP-1\.qa_positions\.edge: 'k' is also given for core"),
+    (lambda d: d["lines"]["TMP-2"].setdefault("units", {}).update(position="F"),
+     r"lines\.TMP-2\.units\.position: is not a numeric canonical column"),
 ])
 def test_broken_description_names_the_key_and_the_fix(edit, expected):
     data = demo_data()
     edit(data)
     problems = problems_of(data)
     assert any(re.search(expected, p) for p in problems), problems
+
+
+def test_qa_columns_units_and_position_words_can_be_mapped():
+    data = demo_data()
+    line = data["lines"]["TMP-1"]
+    line.setdefault("columns", {}).update(position="ProbePos", temp_c="ProbeTemp")
+    line.setdefault("units", {}).update(temp_c="F")
+    line["qa_positions"] = {"core": "Kern", "edge": " Rand "}
+    plant, _ = parse_plant(data, DEMO)
+    tmp1 = plant.line("TMP-1")
+    assert tmp1.source_column("position") == "ProbePos" and tmp1.units["temp_c"] == "F"
+    assert tmp1.qa_positions == {"core": "Kern", "edge": "Rand"}
 
 
 def test_every_problem_is_reported_at_once():

@@ -16,7 +16,8 @@ from hypothesis import strategies as st
 
 from optimizer.config import CsvLayout
 from optimizer.errors import LogFileError
-from optimizer.logs.reader import _row_numbers, open_log, parse_numbers, read_log
+from optimizer.logs.reader import Layout, _row_numbers, open_log, parse_numbers, read_log
+from optimizer.logs.validate import Verdict, check_qa
 
 from logfiles import csv_text, plant, tl1_frame, with_line, write, write_frame
 
@@ -219,6 +220,40 @@ def test_qa_file_is_recognised(tmp_path, base):
             "2026-03-16T06:42:31+01:00,TL-1,BEEF-TRIM-90,TL1-BEEF-0001,core,-4.6,\n")
     data, bad, log = read_log(write(tmp_path / "TL-1_qa.csv", text), base)
     assert log.kind == "qa" and bad.empty and data["temp_c"].tolist() == [-4.6]
+
+
+def test_a_qa_export_with_its_own_names_units_and_position_words(tmp_path, base):
+    # a plant whose QA system writes its own header, °F and its own words for the positions;
+    # °F to °C by the definition of the Fahrenheit scale: (24.8 − 32) / 1.8 = −4.0 exactly
+    plant = with_line(base, "TL-1", columns={"position": "Where", "temp_c": "ProbeF"}, units={"temp_c": "F"},
+                      qa_positions={"core": "Kern", "edge": "Rand"})
+    text = ("timestamp,line_id,product_id,lot_id,Where,ProbeF,moisture_pct_wb\n"
+            "2026-03-16T06:42:31+01:00,TL-1,BEEF-TRIM-90,TL1-BEEF-0001,Kern,24.8,\n"
+            "2026-03-16T06:42:31+01:00,TL-1,BEEF-TRIM-90,TL1-BEEF-0001,rand,30.2,\n"
+            "2026-03-16T06:42:31+01:00,TL-1,BEEF-TRIM-90,TL1-BEEF-0001,SURFACE,28.4,\n"
+            "2026-03-16T06:42:31+01:00,TL-1,BEEF-TRIM-90,TL1-BEEF-0001,Mitte,26.6,\n")
+    data, bad, log = read_log(write(tmp_path / "TL-1_qa.csv", text), plant)
+    assert log.kind == "qa"
+    assert log.layout.key != Layout.of_line(base.line("TL-1")).key  # the words change how the file reads
+    assert bad.empty and data["position"].tolist() == ["core", "edge", "surface", "Mitte"]
+    assert data["temp_c"].tolist() == pytest.approx([-4.0, -1.0, -2.0, -3.0], abs=1e-12)
+    # a word neither the format nor the line knows stays as written, and validation sets it aside
+    verdict = Verdict(len(data))
+    check_qa(data, np.ones(len(data), bool), verdict, plant.lines["TL-1"])
+    assert verdict.reason.tolist() == [None, None, None, "bad_position"] and "'Mitte'" in verdict.detail[3]
+
+
+def test_layout_keys_of_earlier_versions_stay():
+    # the store tells an ingested file by content hash and layout key: a key that changed with an
+    # upgrade would read every file again. The canonical layout's key, as computed before QA
+    # position words existed (sha256 of the JSON of its csv, columns and units), must not move.
+    import hashlib
+    import json
+
+    spec = {"csv": [",", ".", "utf-8", None, None], "columns": [], "units": []}
+    csv = CsvLayout()
+    assert [csv.separator, csv.decimal, csv.encoding, csv.timestamp_format, csv.naive_timezone] == spec["csv"]
+    assert Layout(None, csv, {}, {}).key == hashlib.sha256(json.dumps(spec).encode()).hexdigest()[:16]
 
 
 def test_unknown_columns_are_ignored_with_a_warning(tmp_path, base):

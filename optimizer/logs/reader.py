@@ -28,7 +28,7 @@ import pyarrow as pa
 import pyarrow.compute as pc
 import pyarrow.csv as pa_csv
 
-from ..config import CsvLayout, Line, Plant, is_canonical_column, unit_kind
+from ..config import QA_POSITIONS, CsvLayout, Line, Plant, is_canonical_column, unit_kind
 from ..errors import LogFileError
 from ..units import KELVIN_OFFSET, f_to_c, fraction_to_pct, w_to_kw
 from .validate import Verdict
@@ -94,6 +94,7 @@ class Layout:
     csv: CsvLayout
     columns: Mapping[str, str]  # canonical -> source column
     units: Mapping[str, str]  # canonical -> source unit
+    positions: Mapping[str, str] = field(default_factory=dict)  # canonical QA position -> source word
 
     @property
     def key(self) -> str:
@@ -101,6 +102,8 @@ class Layout:
         spec = {"csv": [self.csv.separator, self.csv.decimal, self.csv.encoding,
                         self.csv.timestamp_format, self.csv.naive_timezone],
                 "columns": sorted(self.columns.items()), "units": sorted(self.units.items())}
+        if self.positions:  # only then: the keys of files read before QA position words existed stay
+            spec["positions"] = sorted(self.positions.items())
         return hashlib.sha256(json.dumps(spec).encode()).hexdigest()[:16]
 
     def where(self, table: str = "") -> str:
@@ -110,7 +113,7 @@ class Layout:
 
     @classmethod
     def of_line(cls, line: Line) -> "Layout":
-        return cls(line.line_id, line.csv, dict(line.columns), dict(line.units))
+        return cls(line.line_id, line.csv, dict(line.columns), dict(line.units), dict(line.qa_positions))
 
 
 CANONICAL_LAYOUT = Layout(None, CsvLayout(), {}, {})
@@ -240,7 +243,9 @@ class LogFile:
             col = table.column(source)
             if canonical == "timestamp":
                 continue
-            if canonical in TEXT_COLUMNS:
+            if canonical == "position":
+                data[canonical] = self._positions(_text(col))
+            elif canonical in TEXT_COLUMNS:
                 data[canonical] = _text(col)
             else:
                 data[canonical] = self._number(col, source, canonical, verdict)
@@ -275,6 +280,14 @@ class LogFile:
                                 f"writes them so, set {self.layout.where('csv')} decimal = ','")
         unit = self.layout.units.get(canonical)
         return values if unit is None else to_canonical(values, canonical, unit)
+
+    def _positions(self, words: pd.Series) -> pd.Series:
+        """QA positions in the run-log format's words: the line's own words (``qa_positions``) and
+        the format's words in any letter case; anything else stays as written (and is quarantined)."""
+        known = {w.lower(): w for w in QA_POSITIONS}
+        known.update({word.lower(): canonical for canonical, word in self.layout.positions.items()})
+        lowered = words.str.lower()
+        return lowered.map(known).where(lowered.isin(list(known)), words)
 
     def _warn_once(self, text: str):
         if text not in self.warnings:

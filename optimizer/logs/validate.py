@@ -15,7 +15,7 @@ from typing import Callable, Sequence
 import numpy as np
 import pandas as pd
 
-from ..config import Line, Plant, unit_kind
+from ..config import QA_POSITIONS, Line, Plant, unit_kind
 from ..units import KELVIN_OFFSET, f_to_c
 
 #: Quarantine reasons, in the order they are checked (a row carries the first that applies).
@@ -38,7 +38,6 @@ REASONS = {
     "conflicting_duplicate": "same line and timestamp as a stored row, different values",
 }
 
-QA_POSITIONS = ("core", "surface", "edge", "lab")  # run-log format, QA probe samples
 #: The unit each kind of canonical column is in (run-log format); a source may declare others.
 CANONICAL_UNIT = {"temp": "C", "power": "kW", "speed": "m/min", "load": "kg/m", "energy": "kWh", "moisture": "%"}
 TEMP_RANGE_C = (-60.0, 250.0)
