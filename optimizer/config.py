@@ -19,6 +19,7 @@ from typing import Any
 
 from .errors import ConfigError
 from .properties.composition import COMPONENTS, Composition
+from .units import SOURCE_UNITS
 
 LINE_KINDS = ("tempering", "drying")
 ARRAY_KINDS = ("needle_probes", "surface_pyrometers")
@@ -34,14 +35,7 @@ ZONE_COLUMN_STEMS = ("forward_kw", "reflected_kw")
 #: Columns only QA probe sample files carry (shared run-log format), and the positions they name.
 QA_ONLY_COLUMNS = ("position", "temp_c", "moisture_pct_wb")
 QA_POSITIONS = ("core", "surface", "edge", "lab")
-UNIT_CHOICES = {
-    "temp": ("C", "F", "K"),
-    "power": ("kW", "W"),
-    "speed": ("m/min", "m/s", "ft/min"),
-    "load": ("kg/m", "lb/ft"),
-    "energy": ("kWh", "Wh", "MWh"),
-    "moisture": ("%", "fraction"),
-}
+UNIT_CHOICES = {kind: tuple(units) for kind, units in SOURCE_UNITS.items()}
 TOP_LEVEL_KEYS = ("plant", "store", "paths", "economics", "fit", "recommend", "nightly", "alerts",
                   "lines", "products")
 

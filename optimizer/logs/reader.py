@@ -20,7 +20,7 @@ import re
 import zlib
 from dataclasses import dataclass, field
 from pathlib import Path
-from typing import Callable, Iterator, Mapping
+from typing import Iterator, Mapping
 
 import numpy as np
 import pandas as pd
@@ -30,7 +30,7 @@ import pyarrow.csv as pa_csv
 
 from ..config import QA_POSITIONS, CsvLayout, Line, Plant, is_canonical_column, unit_kind
 from ..errors import LogFileError
-from ..units import KELVIN_OFFSET, f_to_c, fraction_to_pct, w_to_kw
+from ..units import SOURCE_UNITS
 from .validate import Verdict
 
 #: Columns every log file must have (process log and QA samples alike).
@@ -38,30 +38,6 @@ REQUIRED_COLUMNS = ("timestamp", "line_id")
 #: QA probe sample columns (shared run-log format, "QA probe samples").
 QA_COLUMNS = ("timestamp", "line_id", "product_id", "lot_id", "position", "temp_c", "moisture_pct_wb")
 TEXT_COLUMNS = ("line_id", "product_id", "lot_id", "position")
-
-#: International foot and avoirdupois pound, exact by definition (international yard and
-#: pound agreement, 1959).
-FOOT_M = 0.3048
-POUND_KG = 0.45359237
-
-#: Source unit -> function giving the canonical trade unit of the column's kind.
-TO_CANONICAL: dict[tuple[str, str], Callable] = {
-    ("temp", "C"): lambda x: x,
-    ("temp", "F"): f_to_c,
-    ("temp", "K"): lambda x: x - KELVIN_OFFSET,
-    ("power", "kW"): lambda x: x,
-    ("power", "W"): w_to_kw,
-    ("speed", "m/min"): lambda x: x,
-    ("speed", "m/s"): lambda x: x * 60.0,
-    ("speed", "ft/min"): lambda x: x * FOOT_M,
-    ("load", "kg/m"): lambda x: x,
-    ("load", "lb/ft"): lambda x: x * (POUND_KG / FOOT_M),
-    ("energy", "kWh"): lambda x: x,
-    ("energy", "Wh"): lambda x: x * 1e-3,
-    ("energy", "MWh"): lambda x: x * 1e3,
-    ("moisture", "%"): lambda x: x,
-    ("moisture", "fraction"): fraction_to_pct,
-}
 
 DEFAULT_BLOCK_BYTES = 4 << 20  # pyarrow parse block (~30 k rows of a 5-zone line); parsed fastest
 SNIFF_BYTES = 1 << 16
@@ -428,7 +404,7 @@ def timestamps_ms(values) -> np.ndarray:
 
 def to_canonical(values: np.ndarray, canonical: str, unit: str) -> np.ndarray:
     """Convert a column from a source unit to the canonical unit of its kind."""
-    return TO_CANONICAL[(unit_kind(canonical), unit)](values)
+    return SOURCE_UNITS[unit_kind(canonical)][unit](values)
 
 
 def localize_wall_times(wall_ms: np.ndarray, zone: str, second_pass: np.ndarray | None = None):
@@ -708,4 +684,4 @@ def _stream_problem(exc: Exception, rows_seen: int, layout: Layout) -> str:
 
 __all__ = ["Chunk", "LogFile", "Layout", "SerialReadNeeded", "CANONICAL_LAYOUT", "open_log", "read_log", "file_sha256",
            "parse_numbers", "to_canonical", "timestamps_ms", "localize_wall_times", "REQUIRED_COLUMNS", "QA_COLUMNS",
-           "TEXT_COLUMNS", "TO_CANONICAL", "DEFAULT_BLOCK_BYTES"]
+           "TEXT_COLUMNS", "DEFAULT_BLOCK_BYTES"]
