@@ -8,6 +8,7 @@ from __future__ import annotations
 
 import datetime as dt
 import json
+import shutil
 import sys
 from pathlib import Path
 
@@ -16,9 +17,49 @@ from .config import load_plant
 DEFAULT_CONFIG = Path(__file__).resolve().parents[1] / "configs" / "demo.toml"
 
 
+class DemoStoreError(Exception):
+    """The demo cannot start afresh on this store."""
+
+
+def set_previous_demo_aside(plant, incoming: Path) -> Path | None:
+    """Move the last demo's store, logs and exports into ``previous-demo-<UTC time>/`` beside
+    the incoming folder, so that a fresh demo starts on an empty store (new logs for the same
+    days would otherwise be dropped as duplicates of the stored samples). Only what the demo
+    made moves: its SQLite store, the files its manifest lists, its exports. Nothing is deleted.
+    Returns the folder, or None when there was nothing to move.
+    """
+    from sqlalchemy.engine import make_url
+
+    from .demo import demo_manifest_path
+    from .jobs import exclusive_lock, plant_paths
+
+    url = make_url(plant.store_url)
+    if url.get_backend_name() != "sqlite" or url.database in (None, "", ":memory:"):
+        raise DemoStoreError(f"the store {plant.store_url} is not a SQLite file; --fresh only sets aside the "
+                             "demo's own SQLite store. Point [store] url at a new database for a fresh demo.")
+    store = Path(url.database)
+    manifest_path = demo_manifest_path(incoming)
+    logs = []
+    if manifest_path.exists():
+        logs = [incoming / name for name in json.loads(manifest_path.read_text())["files"]] + [manifest_path]
+    exports = sorted(plant.export_dir.glob("*")) if plant.export_dir.is_dir() else []
+    moving = [(f, part) for part, files in (("store", [Path(f"{store}{s}") for s in ("", "-wal", "-shm")]),
+                                            ("incoming", logs), ("exports", exports))
+              for f in files if f.exists()]
+    if not moving:
+        return None
+    stamp = dt.datetime.now(dt.timezone.utc).strftime("%Y%m%dT%H%M%SZ")
+    aside = incoming.parent / f"previous-demo-{stamp}"
+    with exclusive_lock(plant_paths(plant)["lock"]):  # no nightly run writes meanwhile
+        for f, part in moving:
+            (aside / part).mkdir(parents=True, exist_ok=True)
+            shutil.move(f, aside / part / f.name)
+    return aside
+
+
 def cmd_demo(args) -> int:
     from .demo import demo_manifest_path, generate_demo_logs
-    from .jobs import EXIT_FAILED, run_nightly
+    from .jobs import EXIT_FAILED, LockHeld, run_nightly
 
     plant, _ = load_plant(args.config)
     if not plant.incoming_dirs:
@@ -32,6 +73,14 @@ def cmd_demo(args) -> int:
         print(f"demo logs already in {incoming} ({manifest['days']} days from {manifest['start']}); "
               "--fresh makes new ones")
     else:
+        if args.fresh:
+            try:
+                aside = set_previous_demo_aside(plant, incoming)
+            except (DemoStoreError, LockHeld) as exc:
+                print(f"demo --fresh: {exc}", file=sys.stderr)
+                return EXIT_FAILED
+            if aside is not None:
+                print(f"the previous demo (store, logs, exports) is kept in {aside}; delete it when done with it")
         print(f"generating {args.days} days of historian logs for {len(plant.lines)} lines into {incoming} …")
         generate_demo_logs(plant, incoming, start=args.start, days=args.days, interval_s=args.interval_s,
                            seed=args.seed)
@@ -63,6 +112,7 @@ def add_demo_parser(sub) -> None:
                                                           "end of daylight saving)")
     p.add_argument("--interval-s", type=int, default=30, help="historian sample interval [s] (default 30)")
     p.add_argument("--seed", type=int, default=2026, help="seed of the generator (same seed, same files)")
-    p.add_argument("--fresh", action="store_true", help="generate new logs even when some exist")
+    p.add_argument("--fresh", action="store_true", help="start afresh: set the last demo's store, logs and exports "
+                   "aside (into previous-demo-<time>/, nothing is deleted) and generate new logs")
     p.add_argument("--serve", action="store_true", help="start the dashboard afterwards")
     p.set_defaults(func=cmd_demo)

@@ -80,3 +80,46 @@ def test_simulate_unknown_line_and_product():
     res = run_cli("simulate", "--config", DEMO, "--line", "TMP-1", "--product", "HAKE-FLT-BLK",
                   "--belt-speed", "1", "--zone-power", "1,1,1,1,1")
     assert res.returncode == 2 and "does not run on line TMP-1" in res.stderr
+
+
+def _demo_copy(tmp_path: Path) -> Path:
+    """The demo description with its store, logs and exports under tmp_path/data/demo."""
+    text = Path(DEMO).read_text()
+    cfg = tmp_path / "configs" / "demo.toml"
+    cfg.parent.mkdir(parents=True)
+    cfg.write_text(text)  # relative paths (../data/demo/...) now point under tmp_path
+    return cfg
+
+
+def test_demo_runs_end_to_end_and_fresh_sets_the_last_one_aside(tmp_path, capsys):
+    from optimizer.store import Store
+
+    cfg = _demo_copy(tmp_path)
+    demo = tmp_path / "data" / "demo"
+    small = ["demo", "--config", str(cfg), "--days", "1", "--interval-s", "600"]
+    assert main([*small, "--seed", "1"]) == 0
+    out = capsys.readouterr().out
+    assert f"store: sqlite:///{demo / 'beltwave.sqlite'}" in out and "nightly:" in out
+    first = sorted(p.name for p in (demo / "incoming").iterdir())
+    with Store.open(f"sqlite:///{demo / 'beltwave.sqlite'}", readonly=True) as s:
+        first_samples = s.sample_count()
+    assert first_samples > 0
+
+    # again without --fresh: the logs are kept and nothing new is stored
+    assert main([*small, "--seed", "1"]) == 0
+    assert "demo logs already in" in capsys.readouterr().out
+    with Store.open(f"sqlite:///{demo / 'beltwave.sqlite'}", readonly=True) as s:
+        assert s.sample_count() == first_samples
+
+    # --fresh with another seed: the old store, logs and exports move aside, untouched, and
+    # the new logs fill a new store (else they would be dropped as duplicates of the old samples)
+    assert main([*small, "--seed", "2", "--fresh"]) == 0
+    out = capsys.readouterr().out
+    kept = sorted(demo.glob("previous-demo-*"))
+    assert len(kept) == 1 and f"kept in {kept[0]}" in out
+    assert sorted(p.name for p in (kept[0] / "incoming").iterdir()) == first
+    assert (kept[0] / "store" / "beltwave.sqlite").exists() and any((kept[0] / "exports").iterdir())
+    with Store.open(f"sqlite:///{kept[0] / 'store' / 'beltwave.sqlite'}", readonly=True) as s:
+        assert s.sample_count() == first_samples and len(s.job_runs()) == 2
+    with Store.open(f"sqlite:///{demo / 'beltwave.sqlite'}", readonly=True) as s:
+        assert s.sample_count() > 0 and len(s.job_runs()) == 1
