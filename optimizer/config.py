@@ -117,6 +117,9 @@ class Line:
     columns: dict[str, str] = field(default_factory=dict)  # canonical -> source column
     units: dict[str, str] = field(default_factory=dict)  # canonical -> source unit
     qa_positions: dict[str, str] = field(default_factory=dict)  # canonical position -> the export's word
+    #: the line's controls scale every zone's forward power with the measured belt load (the
+    #: setting holds for the nominal load; kW per kg/m stays), within the ratings and the cap
+    power_follows_load: bool = False
 
     @property
     def zone_count(self) -> int:
@@ -251,6 +254,15 @@ class _Reader:
             self.problem(full, f"{value:g} is out of range; it must be {rng}{hint}")
         return value
 
+    def flag(self, data: dict, key: str, path: str, *, default: bool = False) -> bool:
+        if key not in data:
+            return default
+        value = data[key]
+        if not isinstance(value, bool):
+            self.problem(f"{path}{key}", f"must be true or false, not {value!r}")
+            return default
+        return value
+
     def text(self, data: dict, key: str, path: str, *, default=None, choices=None):
         full = f"{path}{key}"
         if key not in data:
@@ -292,7 +304,8 @@ _LINE_KEYS = {
     "kind", "frequency_mhz", "zone_length_m", "zone_max_kw", "total_power_cap_kw", "infeed_choke_m",
     "outfeed_choke_m", "belt_width_m", "belt_speed_min_m_per_min", "belt_speed_max_m_per_min",
     "generator_efficiency", "products", "outfeed_array", "aux_power_kw", "air_heater_kw_per_k",
-    "ambient_temp_c", "power_step_kw", "csv", "columns", "units", "qa_positions", "description",
+    "ambient_temp_c", "power_step_kw", "csv", "columns", "units", "qa_positions", "power_follows_load",
+    "description",
 }
 _PRODUCT_KEYS = {
     "process", "description", "composition", "piece_thickness_m", "targets", "typical",
@@ -399,6 +412,7 @@ def _read_line(r: _Reader, line_id: str, d: dict, base: Path) -> Line | None:
         ambient_temp_c=r.number(d, "ambient_temp_c", p, default=20.0, low=-40, high=60),
         power_step_kw=step, csv=csv, columns=dict(columns), units=dict(units),
         qa_positions={c: w.strip() for c, w in positions.items() if c in QA_POSITIONS and isinstance(w, str)},
+        power_follows_load=r.flag(d, "power_follows_load", p),
     )
 
 

@@ -75,6 +75,8 @@ def test_unknown_line_or_product_is_named():
      r"lines\.TMP-1\.qa_positions\.centre: is not a QA position; the keys are core, surface, edge, lab"),
     (lambda d: d["lines"]["TMP-1"].update(qa_positions={"core": "K", "edge": "k"}),
      r"lines\.TMP-1\.qa_positions\.edge: 'k' is also given for core"),
+    (lambda d: d["lines"]["TMP-1"].update(power_follows_load="yes"),
+     r"lines\.TMP-1\.power_follows_load: must be true or false, not 'yes'"),
     (lambda d: d["lines"]["TMP-2"].setdefault("units", {}).update(position="F"),
      r"lines\.TMP-2\.units\.position: is not a numeric canonical column"),
 ])

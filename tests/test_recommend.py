@@ -360,6 +360,62 @@ def test_exports_are_written_atomically_and_readable(tmp_path, solved):
     assert data["date"] == "2024-03-05" and data["recommendations"][0]["product_id"] == rec.product_id
 
 
+# ----------------------------------------------------------------------------- power following the load
+
+def test_load_following_powers_scale_with_the_load_within_the_ratings_and_the_cap():
+    # by definition of the rule: kW per kg/m held, each zone clipped at its rating, all zones
+    # scaled back together where their sum passes the line's cap
+    problem = build_problem("TMP-1/PORK-SHLDR-BLK")
+    line, nominal = problem.line, problem.conditions.belt_load_kg_per_m
+    setting = np.array([[10.0, 8.0, 6.0, 4.0, 2.0]])
+    kw = problem.load_following_kw(np.repeat(setting, 2, axis=0), np.array([nominal, 1.1 * nominal]))
+    np.testing.assert_allclose(kw, [setting[0], 1.1 * setting[0]], rtol=1e-12)
+    rated = np.array([[0.9 * r for r in line.zone_max_kw]])
+    kw = problem.load_following_kw(rated, np.array([1.5 * nominal]))[0]
+    expected = np.array(line.zone_max_kw, float)
+    if expected.sum() > line.total_power_cap_kw:
+        expected *= line.total_power_cap_kw / expected.sum()
+    np.testing.assert_allclose(kw, expected, rtol=1e-12)
+    assert kw.sum() <= line.total_power_cap_kw * (1 + 1e-12)
+
+
+@pytest.mark.parametrize("follows", [False, True])
+def test_a_line_that_follows_the_load_holds_the_outfeed_through_lot_to_lot_load(follows):
+    # The dryer at one fixed setting, lots differing only in belt load (sd 8 %, no infeed spread):
+    # with power following the load the energy per kg is the same for every lot, so the outfeed
+    # moisture hardly moves; with fixed power a heavier lot leaves wetter. The model decides how
+    # much: the check is only that following removes most (≥ 70 %) of the load-driven spread.
+    line_id, product_id, share, _ = CASES["DRY-1/FUSILLI-DRY"]
+    fitted = dataclasses.replace(model_for_case(line_id, product_id, share), covariance=None)  # no parameter spread
+    product = PLANT.product(product_id)
+    conds = resolve_conditions(product, None, None)
+    spread = ConditionsSpread(0.0, 0.08 * conds.belt_load_kg_per_m)
+    spreads = {}
+    for follow in (False, True):
+        line = dataclasses.replace(PLANT.line(line_id), power_follows_load=follow)
+        problem = RobustProblem.build(line, product, fitted, conditions=conds, spread=spread, confidence=CONFIDENCE,
+                                      rng=np.random.default_rng(3))
+        out = problem.robust(np.array([0.45]), np.array([[6.0, 6.0, 5.5, 5.0, 4.5, 4.0]])).outcome
+        spreads[follow] = float(np.std(out.outfeed_moisture_pct_wb))
+    assert spreads[True] <= 0.3 * spreads[False], spreads
+    # the record says which rule its powers assume, in the keyed-in text and in the export
+    line = dataclasses.replace(PLANT.line(line_id), power_follows_load=follows)
+    problem = RobustProblem.build(line, product, model_for_case(line_id, product_id, share), conditions=conds,
+                                  spread=ConditionsSpread(1.0, 0.01 * conds.belt_load_kg_per_m),
+                                  confidence=CONFIDENCE, rng=np.random.default_rng(11))
+    rec = recommend_problem(problem, rng=np.random.default_rng(5))
+    assert rec.inputs["power_follows_load"] is follows
+    assert ("scales the zone powers with the measured load" in rec.settings_text()) is follows
+    assert any("power_follows_load" in n for n in rec.notes) is follows
+
+
+def test_export_names_the_load_the_powers_are_for(tmp_path, solved):
+    _, problem, rec = solved
+    table = pd.read_csv(export_recommendations([rec], tmp_path, "2024-03-05")[0])
+    assert table.loc[0, "belt_load_kg_per_m"] == pytest.approx(problem.conditions.belt_load_kg_per_m, abs=1e-4)
+    assert bool(table.loc[0, "power_follows_load"]) is problem.line.power_follows_load
+
+
 # ----------------------------------------------------------------------------- command line
 
 def run_recommend(argv, capsys):

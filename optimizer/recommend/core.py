@@ -164,7 +164,11 @@ class Recommendation:
         if self.belt_speed_m_per_min is None:
             return "no setting"
         zones = ", ".join(f"zone {i} {p:g} kW" for i, p in enumerate(self.zone_forward_kw, start=1))
-        return f"belt speed {self.belt_speed_m_per_min:g} m/min; {zones}"
+        text = f"belt speed {self.belt_speed_m_per_min:g} m/min; {zones}"
+        if self.inputs.get("power_follows_load"):
+            load = self.inputs["conditions"]["belt_load_kg_per_m"]
+            text += f" (at {load:g} kg/m belt load; the line scales the zone powers with the measured load)"
+        return text
 
     def to_json(self) -> dict:
         out = {f.name: getattr(self, f.name) for f in fields(self)}
@@ -378,6 +382,11 @@ def _notes(problem: RobustProblem) -> list[str]:
     if problem.fitted.status == "cold_start":
         notes.append("The model is a cold start (composition-based defaults with a wide uncertainty); a model "
                      "fitted to this line's logs narrows it and usually widens what is feasible.")
+    if problem.line.power_follows_load:
+        notes.append(f"Zone powers are given for a belt load of {problem.conditions.belt_load_kg_per_m:g} kg/m; "
+                     f"line {problem.line.line_id} scales them with the measured load (power_follows_load), "
+                     "and the probability in spec counts on it. Where the controls do not follow the load, "
+                     "set power_follows_load = false: lot-to-lot load then spreads the outfeed more.")
     if problem.line.kind == "drying":
         notes.append(f"Tunnel air temperature is held at {problem.conditions.air_temp_c:g} °C; it is not "
                      "a decision variable of this recommendation.")
@@ -465,7 +474,8 @@ def _record(problem: RobustProblem, cand: Candidate | None, infeasible, front, p
     inputs = {"conditions": problem.conditions.to_json(), "conditions_spread": problem.spread.to_json(),
               "min_throughput_kg_per_h": problem.min_throughput_kg_per_h, "samples": problem.n_samples,
               "decision_variables": ["belt_speed_m_per_min", "zone_forward_kw"],
-              "held": {"air_temp_c": problem.conditions.air_temp_c}}
+              "held": {"air_temp_c": problem.conditions.air_temp_c},
+              "power_follows_load": bool(problem.line.power_follows_load)}
     search_info = {"evaluations": dict(problem.evaluations)}
     common = dict(line_id=problem.line.line_id, product_id=problem.product.product_id, objective=problem.objective,
                   confidence=problem.confidence, model_version=problem.fitted.version_id,

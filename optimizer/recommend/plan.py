@@ -147,7 +147,8 @@ def export_recommendations(recs, export_dir: str | Path, date: dt.date | str) ->
     """Write ``recommendations_<date>.csv`` and ``.json`` into ``export_dir`` atomically.
 
     The CSV has one row per recommendation with the settings as keyed in (one column per
-    zone, blank for zones a line lacks); the JSON holds the full records. Returns the two paths.
+    zone, blank for zones a line lacks), the belt load the zone powers are for and whether the
+    line scales them with the measured load; the JSON holds the full records. Returns the two paths.
     """
     day = date.isoformat() if isinstance(date, dt.date) else str(dt.date.fromisoformat(str(date)))
     folder = Path(export_dir)
@@ -156,7 +157,8 @@ def export_recommendations(recs, export_dir: str | Path, date: dt.date | str) ->
     zones = max((len(r.get("zone_forward_kw") or []) for r in records), default=0)
     columns = ["date", "line_id", "product_id", "feasible", "belt_speed_m_per_min",
                *[f"zone{i}_forward_kw" for i in range(1, zones + 1)], "specific_energy_kwh_per_t",
-               "throughput_kg_per_h", "probability_in_spec", "binding_constraints", "model_version"]
+               "throughput_kg_per_h", "probability_in_spec", "binding_constraints", "model_version",
+               "belt_load_kg_per_m", "power_follows_load"]
     rows = []
     for r in records:
         powers = list(r.get("zone_forward_kw") or [])
@@ -166,7 +168,10 @@ def export_recommendations(recs, export_dir: str | Path, date: dt.date | str) ->
                "throughput_kg_per_h": r.get("throughput_kg_per_h"),
                "probability_in_spec": r.get("probability_in_spec"),
                "binding_constraints": "; ".join(b["name"] for b in r.get("binding_constraints") or []),
-               "model_version": r.get("model_version")}
+               "model_version": r.get("model_version"),
+               # the load the zone powers are for; scaled with the measured load where the line follows it
+               "belt_load_kg_per_m": ((r.get("inputs") or {}).get("conditions") or {}).get("belt_load_kg_per_m"),
+               "power_follows_load": bool((r.get("inputs") or {}).get("power_follows_load", False))}
         row.update({f"zone{i}_forward_kw": (powers[i - 1] if i <= len(powers) else None) for i in range(1, zones + 1)})
         rows.append(row)
     base = folder / f"recommendations_{day}"

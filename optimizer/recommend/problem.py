@@ -259,7 +259,10 @@ class RobustProblem:
         for lo in range(0, m, per_chunk):
             k = min(per_chunk, m - lo)
             params = {name: np.tile(v, k) for name, v in self.samples.items()}
-            parts.append(self._steady(np.repeat(speed[lo:lo + k], s), np.repeat(powers[lo:lo + k], s, axis=0),
+            zone_kw = np.repeat(powers[lo:lo + k], s, axis=0)
+            if self.line.power_follows_load:
+                zone_kw = self.load_following_kw(zone_kw, np.tile(self.belt_load_samples_kg_per_m, k))
+            parts.append(self._steady(np.repeat(speed[lo:lo + k], s), zone_kw,
                                       infeed_temp_c=np.tile(self.infeed_temp_samples_c, k),
                                       belt_load_kg_per_m=np.tile(self.belt_load_samples_kg_per_m, k),
                                       param_overrides=params or None))
@@ -268,6 +271,17 @@ class RobustProblem:
         margins = self.margins_of(out).reshape(m, s, -1)
         return RobustScored(speed, powers, self.nominal(speed, powers), margins, self.criterion(margins),
                             self.in_spec_share(margins), out)
+
+    def load_following_kw(self, zone_kw: np.ndarray, belt_load_kg_per_m: np.ndarray) -> np.ndarray:
+        """Zone forward powers [kW] (N, Z) that a line whose controls follow the belt load sets at
+        each row's load: the setting scaled by load / nominal load, each zone within its rating,
+        and all zones scaled back together where their sum would pass the line's cap."""
+        ratio = np.asarray(belt_load_kg_per_m, dtype=float) / self.conditions.belt_load_kg_per_m
+        kw = np.minimum(zone_kw * ratio[:, None], np.asarray(self.line.zone_max_kw, dtype=float)[None, :])
+        total = kw.sum(axis=1)
+        over = total > self.line.total_power_cap_kw
+        kw[over] *= (self.line.total_power_cap_kw / total[over])[:, None]
+        return kw
 
     def criterion(self, margins: np.ndarray, columns=None) -> np.ndarray:
         """The robust criterion q of margins (..., S, J): q ≥ 0 exactly when the share in spec ≥ confidence.
