@@ -291,8 +291,8 @@ def recommend_problem(problem: RobustProblem, *, recent_practice=None, economics
         info, chosen = _targets_infeasible(free, free_result, rng)
         rescued = from_compromise(free, free_result, chosen) if min_throughput_kg_per_h is None else None
         if rescued is not None:  # the search missed a sliver the compromise search found
-            logger.warning("recommend %s × %s: the screen missed a feasible sliver; taken from the compromise",
-                           line.line_id, product.product_id)
+            logger.info("recommend %s × %s: the screen missed a feasible sliver; taken from the compromise",
+                        line.line_id, product.product_id)
             result = SearchResult(rescued, free_result.pool, free_result.rays, free_result.deviation)
             chosen, info = rescued, None
         elif infeasible is not None:
@@ -415,8 +415,9 @@ def _throughput_infeasible(problem: RobustProblem, rng, belt_limited: bool):
         return {"constraint": "min_throughput_kg_per_h", "required": need, "unit": "kg/h", "message": why + "."}, None
     reach = float(best.scored.nominal.outcome.throughput_kg_per_h[best.index])
     if reach >= need:  # the constrained screen missed a narrow feasible region the throughput search found
-        logger.warning("recommend %s × %s: the screen at %g kg/h found nothing; the fastest setting that meets "
-                       "the targets (%.0f kg/h) is taken", problem.line.line_id, problem.product.product_id, need, reach)
+        # a search detail, not the user's problem (the result is feasible): the log keeps it
+        logger.info("recommend %s × %s: the screen at %.0f kg/h found nothing; the fastest setting that meets "
+                    "the targets (%.0f kg/h) is taken", problem.line.line_id, problem.product.product_id, need, reach)
         return None, best
     info = {"constraint": "min_throughput_kg_per_h", "required": need, "reachable": round(reach, 1),
             "shortfall": round(need - reach, 1), "unit": "kg/h",
