@@ -222,7 +222,9 @@ class LotRecord:
     product_id: str
     start: str  # first sample [ISO 8601 with offset]
     end: str  # last sample
-    setpoints: list[dict] = field(default_factory=list)  # {"start", belt speed, zone powers}
+    #: {"start", belt speed, zone powers}: the powers as the line applied them (on a line whose
+    #: power follows the load, the keyed-in powers scaled to the lot's load)
+    setpoints: list[dict] = field(default_factory=list)
     air_temp_c: float | None = None
     infeed_temp_c: float | None = None  # lot base (cold store)
     belt_load_kg_per_m: float | None = None
@@ -860,6 +862,9 @@ class _LineSim:
         infeed_base = typ.infeed_temp_c + rng.uniform(-INFEED_LOT_SPREAD_K, INFEED_LOT_SPREAD_K)
         drift = rng.uniform(*INFEED_DRIFT_K_PER_H)
         load_base = typ.belt_load_kg_per_m * (1 + rng.uniform(-LOAD_LOT_SPREAD, LOAD_LOT_SPREAD))
+        if self.line.power_follows_load:  # the belt scale trims the keyed-in powers to the lot's load
+            scale = load_base / typ.belt_load_kg_per_m
+            segments = [(off, v, _round_power(self.line, p * scale)) for off, v, p in segments]
         air_c = habit.air_temp_c + rng.uniform(*((-1.0, 1.0) if drying else (-0.3, 0.3)))
         info = {"segments": segments, "infeed_base_c": infeed_base, "load_base": load_base, "air_temp_c": air_c}
         if drying:

@@ -517,3 +517,36 @@ def test_defaults_cover_the_end_of_summer_time():
 def test_bad_arguments_say_what_to_give(tmp_path, kwargs, message):
     with pytest.raises(InputError, match=message):
         generate_demo_logs(PLANT, tmp_path, **{"start": START, "days": 1, **kwargs})
+
+
+def test_on_a_line_that_follows_the_load_the_applied_powers_scale_with_the_lot_load(clean, tmp_path):
+    # The demo lines are described with power_follows_load = true: a lot's applied zone powers
+    # are the operators' habit (times its small lot-to-lot noise) scaled by load / typical load.
+    # Regressing log(applied / habit) on log(load / typical) over the lots, zones near their
+    # rating left out (clipped there), gives a slope of 1 when the powers follow the load and 0
+    # when they do not; ±0.35 absorbs the 2 % lot and 1 % zone noise and the power step.
+    def slopes(manifest):
+        out = {}
+        for line_id, line in PLANT.lines.items():
+            xs, ys = [], []
+            for lot in (x for x in manifest.lots if x.line_id == line_id):
+                habit = np.array(manifest.model_truth(line_id, lot.product_id).habit["zone_forward_kw"])
+                applied = np.array(lot.setpoints[0]["zone_forward_kw"])
+                free = (applied < 0.95 * np.array(line.zone_max_kw)) & (habit > 0)
+                typical = PLANT.product(lot.product_id).typical.belt_load_kg_per_m
+                xs += [math.log(lot.belt_load_kg_per_m / typical)] * int(free.sum())
+                ys += list(np.log(applied[free] / habit[free]))
+            out[line_id] = float(np.polyfit(xs, ys, 1)[0])
+        return out
+
+    _, manifest = clean
+    for line_id, slope in slopes(manifest).items():
+        assert slope == pytest.approx(1.0, abs=0.35), (line_id, slope)
+    import dataclasses
+
+    fixed = dataclasses.replace(PLANT, lines={k: dataclasses.replace(v, power_follows_load=False)
+                                              for k, v in PLANT.lines.items()})
+    manifest = generate_demo_logs(fixed, tmp_path, start=START, days=DAYS, interval_s=INTERVAL_S, seed=SEED,
+                                  faults=False, workers=1)
+    for line_id, slope in slopes(manifest).items():
+        assert slope == pytest.approx(0.0, abs=0.35), (line_id, slope)
